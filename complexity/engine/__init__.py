@@ -1,0 +1,136 @@
+"""Engines: fit every capacity of a ladder on every training set of a plan.
+
+Both engines take a :class:`Problem` and a list of :class:`~complexity.plans.Resample` and yield one
+:class:`Outcome` per resample, in resample order, whatever the number of workers. The accumulators
+consume outcomes one at a time, so no engine ever has to hold all predictions.
+
+- :mod:`complexity.engine.generic`: clone and fit any scikit-learn estimator, through joblib.
+- :mod:`complexity.engine.linear`: least-squares ladders, every capacity from one factorization.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..ladders import Ladder
+from ..plans import Plan, Resample, Simulation
+
+__all__ = ["FullFit", "Outcome", "Problem"]
+
+
+@dataclass(frozen=True)
+class Problem:
+    """Everything an engine needs, fixed before any fitting starts.
+
+    Attributes
+    ----------
+    ladder : Ladder
+    models : list
+        One unfitted estimator per capacity, built once from the full data (so data-derived
+        settings such as a polynomial's x range are the same for every resample).
+    X, y : ndarray or None
+        The observed data (None for a simulation without data).
+    X_eval : ndarray of shape (m, p)
+        Evaluation points: the rows of X for data plans, ``x_eval`` for a simulation.
+    target : ndarray of shape (m,)
+        What a prediction at an evaluation point is compared with: y for data plans, the truth
+        for a simulation. Residuals are ``prediction - target``.
+    plan : Plan
+    root : numpy.random.SeedSequence
+    design_X : ndarray
+        The x values the models' data-derived settings were taken from (X, or for a simulation
+        its fixed design or a pilot draw together with ``x_eval``).
+    groups : array or None
+    sample_weight : ndarray or None
+        Per-row weights passed to the estimator's fit (data plans only).
+    """
+
+    ladder: Ladder
+    models: list[Any]
+    X: NDArray[np.float64] | None
+    y: NDArray[np.float64] | None
+    X_eval: NDArray[np.float64]
+    target: NDArray[np.float64]
+    plan: Plan
+    root: np.random.SeedSequence
+    design_X: NDArray[np.float64]
+    groups: Any = None
+    sample_weight: NDArray[np.float64] | None = None
+
+    @property
+    def n_capacities(self) -> int:
+        return len(self.models)
+
+    @property
+    def simulated(self) -> bool:
+        return isinstance(self.plan, Simulation)
+
+    def training_set(
+        self, r: Resample
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64] | None]:
+        """The training rows ``(X, y, sample_weight)`` of resample ``r``."""
+        if isinstance(self.plan, Simulation):
+            X, y = self.plan.draw(r.seed)
+            return X, y, None
+        assert self.X is not None and self.y is not None and r.train is not None
+        w = None if self.sample_weight is None else self.sample_weight[r.train]
+        return self.X[r.train], self.y[r.train], w
+
+
+@dataclass
+class Outcome:
+    """What one resample contributes: residuals at its evaluation points, for every capacity.
+
+    Attributes
+    ----------
+    index, replicate : int
+        As in the resample.
+    test : ndarray of int, shape (m,)
+        Evaluation points scored.
+    residuals : ndarray of shape (m, n_capacities)
+        ``prediction - target``; a column of NaN where the fit at that capacity failed.
+    train_mse : ndarray of shape (n_capacities,)
+        Mean squared error of each fit on its own training set (NaN where it failed).
+    failures : dict
+        Capacity position -> message, for the fits that failed.
+    """
+
+    index: int
+    replicate: int
+    test: NDArray[np.intp]
+    residuals: NDArray[np.float64]
+    train_mse: NDArray[np.float64]
+    failures: dict[int, str] = field(default_factory=dict)
+
+
+@dataclass
+class FullFit:
+    """Every capacity fitted once on all the data.
+
+    Attributes
+    ----------
+    fitted : ndarray of shape (n, n_capacities)
+        In-sample predictions (NaN where the fit failed).
+    train_mse : ndarray of shape (n_capacities,)
+        The apparent (training) error of each full-data fit.
+    failures : dict
+        Capacity position -> message.
+    criteria : pandas.DataFrame or None
+        Closed-form criteria per capacity (least-squares ladders only).
+    diagnostics : pandas.DataFrame or None
+        Conditioning and coefficient-size diagnostics per capacity (least-squares ladders only).
+    coefficients : dict or None
+        Capacity value -> DataFrame of coefficients in the user's units (``estimate``,
+        ``std_error``), indexed by term (least-squares ladders only).
+    """
+
+    fitted: NDArray[np.float64]
+    train_mse: NDArray[np.float64]
+    failures: dict[int, str] = field(default_factory=dict)
+    criteria: Any = None
+    diagnostics: Any = None
+    coefficients: dict[Any, Any] | None = None

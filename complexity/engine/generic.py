@@ -1,0 +1,164 @@
+"""Generic engine: one clone-and-fit per (resample, capacity), through ``joblib.Parallel``.
+
+Works for any scikit-learn regressor. Resamples are grouped into chunks (one joblib task each);
+each chunk returns its outcomes in resample order and joblib returns chunks in submission order,
+so the outcomes, and everything computed from them, are identical for any ``n_jobs`` and any
+joblib backend (including ``joblib.parallel_config(backend="dask")``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator, Sequence
+from typing import Any
+
+import numpy as np
+from joblib import Parallel, delayed
+from numpy.typing import NDArray
+from sklearn.base import clone
+
+from ..plans import STREAM_ESTIMATOR, STREAM_FULL_FIT, Resample, child_seed
+from . import FullFit, Outcome, Problem
+
+__all__ = ["fit_full", "run"]
+
+
+def _seed_estimator(model: Any, seed: np.random.SeedSequence) -> Any:
+    """Clone ``model``; set every ``random_state`` left as None to an int drawn from ``seed``.
+
+    Keys are visited in sorted order so the assignment is deterministic.
+    """
+    est = clone(model)
+    params = est.get_params(deep=True)
+    keys = sorted(k for k, v in params.items() if (k == "random_state" or k.endswith("__random_state")) and v is None)
+    if keys:
+        draws = np.random.default_rng(seed).integers(0, 2**31 - 1, size=len(keys))
+        est.set_params(**{k: int(d) for k, d in zip(keys, draws)})
+    return est
+
+
+def _fit_one(
+    model: Any,
+    seed: np.random.SeedSequence,
+    X: NDArray[np.float64],
+    y: NDArray[np.float64],
+    w: NDArray[np.float64] | None,
+    X_eval: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Fit one clone; return (predictions on X, predictions on X_eval). Raises on failure."""
+    est = _seed_estimator(model, seed)
+    if w is None:
+        est.fit(X, y)
+    else:
+        est.fit(X, y, **_weight_kwargs(est, w))
+    pred_train = np.asarray(est.predict(X), dtype=np.float64).reshape(-1)
+    pred_eval = (
+        np.asarray(est.predict(X_eval), dtype=np.float64).reshape(-1)
+        if X_eval.shape[0]
+        else np.empty(0)
+    )
+    if not (np.all(np.isfinite(pred_train)) and np.all(np.isfinite(pred_eval))):
+        raise FloatingPointError("the fitted model returned NaN or infinite predictions")
+    return pred_train, pred_eval
+
+
+def _weight_kwargs(est: Any, w: NDArray[np.float64]) -> dict[str, Any]:
+    """Route sample weights to the final step of a pipeline, or to the estimator itself."""
+    steps = getattr(est, "steps", None)
+    if steps:
+        return {f"{steps[-1][0]}__sample_weight": w}
+    return {"sample_weight": w}
+
+
+def _message(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {text[0] if text else ''}".rstrip(": ")
+
+
+def _one_resample(problem: Problem, r: Resample) -> Outcome:
+    C = problem.n_capacities
+    X_tr, y_tr, w = problem.training_set(r)
+    X_ev = problem.X_eval[r.test]
+    target = problem.target[r.test]
+    residuals = np.full((r.test.size, C), np.nan)
+    train_mse = np.full(C, np.nan)
+    failures: dict[int, str] = {}
+    for c, model in enumerate(problem.models):
+        reason = problem.ladder.training_problem(c, X_tr)
+        if reason is not None:
+            failures[c] = reason
+            continue
+        try:
+            pred_tr, pred_ev = _fit_one(
+                model, child_seed(problem.root, STREAM_ESTIMATOR, r.index, c), X_tr, y_tr, w, X_ev
+            )
+        except Exception as exc:  # a failing fit is recorded, the sweep goes on
+            failures[c] = _message(exc)
+            continue
+        residuals[:, c] = pred_ev - target
+        train_mse[c] = float(np.mean((pred_tr - y_tr) ** 2))
+    return Outcome(r.index, r.replicate, r.test, residuals, train_mse, failures)
+
+
+def _chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
+    return [_one_resample(problem, r) for r in chunk]
+
+
+def _chunks(resamples: Sequence[Resample], n_jobs: int | None) -> list[Sequence[Resample]]:
+    from joblib import effective_n_jobs
+
+    workers = max(1, effective_n_jobs(n_jobs))
+    size = max(1, min(32, -(-len(resamples) // (4 * workers))))
+    return [resamples[i : i + size] for i in range(0, len(resamples), size)]
+
+
+def run(
+    problem: Problem,
+    resamples: Sequence[Resample],
+    *,
+    n_jobs: int | None = None,
+    on_done: Callable[[int], None] | None = None,
+) -> Iterator[Outcome]:
+    """Yield the outcome of every resample, in order.
+
+    Parameters
+    ----------
+    problem : Problem
+    resamples : sequence of Resample
+    n_jobs : int or None
+        Passed to :class:`joblib.Parallel` (None: the active ``parallel_config``, else 1).
+    on_done : callable, optional
+        Called with the number of fits finished, after each chunk (for progress display).
+    """
+    chunks = _chunks(resamples, n_jobs)
+    if not chunks:
+        return
+    tasks = (delayed(_chunk)(problem, ch) for ch in chunks)
+    if len(chunks) == 1:
+        results: Any = (_chunk(problem, chunks[0]),)
+    else:
+        results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
+    for outcomes in results:
+        yield from outcomes
+        if on_done is not None:
+            on_done(len(outcomes) * problem.n_capacities)
+
+
+def fit_full(problem: Problem) -> FullFit:
+    """Fit every capacity once on all the data (used for training error and .632 corrections)."""
+    assert problem.X is not None and problem.y is not None
+    X, y = problem.X, problem.y
+    C = problem.n_capacities
+    fitted = np.full((X.shape[0], C), np.nan)
+    train_mse = np.full(C, np.nan)
+    failures: dict[int, str] = {}
+    for c, model in enumerate(problem.models):
+        try:
+            pred, _ = _fit_one(
+                model, child_seed(problem.root, STREAM_FULL_FIT, c), X, y, problem.sample_weight, X[:0]
+            )
+        except Exception as exc:
+            failures[c] = _message(exc)
+            continue
+        fitted[:, c] = pred
+        train_mse[c] = float(np.mean((pred - y) ** 2))
+    return FullFit(fitted, train_mse, failures)

@@ -1,0 +1,396 @@
+"""Plans: where the training sets of a sweep come from.
+
+A plan turns the data (or, for :class:`Simulation`, a known generative model) into a list of
+:class:`Resample` objects: which rows train the model, and at which evaluation points it is scored.
+Every random draw comes from a seed derived from one root :class:`numpy.random.SeedSequence` and the
+resample's index, so the resamples do not depend on how the work is later spread over processes.
+"""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+from sklearn.model_selection import KFold
+
+from ._validation import _short_repr, as_seed_sequence, check_float, check_int
+
+__all__ = ["Bootstrap", "CrossValidation", "Plan", "Resample", "Simulation", "as_plan"]
+
+#: spawn-key prefixes that keep the independent random streams of a sweep apart
+STREAM_RESAMPLE, STREAM_ESTIMATOR, STREAM_FULL_FIT, STREAM_PILOT = 0, 1, 2, 3
+
+
+def child_seed(root: np.random.SeedSequence, *key: int) -> np.random.SeedSequence:
+    """The child of ``root`` at ``key``: a pure function of the root and the key.
+
+    This is what ``root.spawn`` produces, but addressed by key, so it never depends on how many
+    children were spawned before.
+    """
+    return np.random.SeedSequence(root.entropy, spawn_key=(*root.spawn_key, *key))
+
+
+@dataclass(frozen=True)
+class Resample:
+    """One training set and the evaluation points scored against it.
+
+    Attributes
+    ----------
+    index : int
+        Position of this resample in the plan.
+    replicate : int
+        The replicate it belongs to: a bootstrap sample or a simulated training set is its own
+        replicate; the folds of one repetition of K-fold share one. Selection stability is counted
+        over replicates.
+    train : ndarray of int or None
+        Row positions of the training set in X (with repeats for the bootstrap); None for a
+        simulation, whose training set is drawn from ``seed``.
+    test : ndarray of int
+        Positions of the evaluation points scored against this training set.
+    seed : numpy.random.SeedSequence
+        The resample's own seed.
+    """
+
+    index: int
+    replicate: int
+    train: NDArray[np.intp] | None
+    test: NDArray[np.intp]
+    seed: np.random.SeedSequence
+
+
+class Plan:
+    """Base class of the plans. Subclasses implement :meth:`resamples` and :meth:`describe`."""
+
+    kind: str = "plan"
+
+    def resamples(
+        self,
+        n: int,
+        root: np.random.SeedSequence,
+        X: NDArray[np.float64] | None = None,
+        y: NDArray[np.float64] | None = None,
+        groups: Any = None,
+    ) -> list[Resample]:
+        raise NotImplementedError
+
+    def split(
+        self, X: Any, y: Any = None, groups: Any = None, random_state: Any = None
+    ) -> Iterator[tuple[NDArray[np.intp], NDArray[np.intp]]]:
+        """Yield ``(train, test)`` row positions, as the sweep would draw them for ``random_state``.
+
+        Useful to hand exactly the sweep's training sets to another tool, such as
+        :func:`sklearn.model_selection.cross_val_score` (``cv=list(plan.split(X, random_state=0))``).
+        """
+        n = len(X)
+        for r in self.resamples(n, as_seed_sequence(random_state), X, y, groups):
+            if r.train is None:
+                raise TypeError("a Simulation draws fresh data; it has no split of X.")
+            yield r.train, r.test
+
+    def describe(self) -> dict[str, Any]:
+        raise NotImplementedError
+
+    def __repr__(self) -> str:
+        desc = self.describe()
+        args = ", ".join(f"{k}={v!r}" for k, v in desc.items() if k != "kind")
+        return f"{type(self).__name__}({args})"
+
+
+class Bootstrap(Plan):
+    """Bootstrap resampling: train on n rows drawn with replacement, score out of bag.
+
+    Each row is scored only by the models whose bootstrap sample left it out (the leave-one-out
+    bootstrap of Efron & Tibshirani, 1997), so the test error is honest and the per-row spread of
+    predictions estimates the variance of the fitting procedure.
+
+    Parameters
+    ----------
+    n_resamples : int, default=200
+        Number of bootstrap samples (>= 2).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> train, test = next(cx.Bootstrap(10).split(np.zeros((5, 1)), random_state=0))
+    >>> len(train), bool(np.intersect1d(train, test).size == 0)
+    (5, True)
+    """
+
+    kind = "bootstrap"
+
+    def __init__(self, n_resamples: int = 200) -> None:
+        self.n_resamples = check_int("n_resamples", n_resamples, minimum=2)
+
+    def resamples(self, n, root, X=None, y=None, groups=None):
+        out = []
+        for b in range(self.n_resamples):
+            seed = child_seed(root, STREAM_RESAMPLE, b)
+            rng = np.random.default_rng(seed)
+            train = rng.integers(0, n, size=n)
+            in_bag = np.zeros(n, dtype=bool)
+            in_bag[train] = True
+            out.append(Resample(b, b, np.sort(train), np.flatnonzero(~in_bag), seed))
+        return out
+
+    def describe(self) -> dict[str, Any]:
+        return {"kind": self.kind, "n_resamples": self.n_resamples}
+
+
+class CrossValidation(Plan):
+    """K-fold cross-validation, optionally repeated with fresh random partitions.
+
+    Parameters
+    ----------
+    n_splits : int, default=10
+        Number of folds K (>= 2).
+    n_repeats : int, default=1
+        Number of independent partitions. Two or more are needed for the variance and squared
+        bias columns (each row must be predicted by at least two models).
+    shuffle : bool, default=True
+        Shuffle rows before cutting folds. Without shuffling, sorted x gives contiguous folds and
+        every held-out fold is an extrapolation; ``shuffle=False`` requires ``n_repeats=1``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> folds = list(cx.CrossValidation(5).split(np.zeros((20, 1)), random_state=0))
+    >>> len(folds), sorted(np.concatenate([test for _, test in folds]).tolist()) == list(range(20))
+    (5, True)
+    """
+
+    kind = "cross-validation"
+
+    def __init__(self, n_splits: int = 10, n_repeats: int = 1, shuffle: bool = True) -> None:
+        self.n_splits = check_int("n_splits", n_splits, minimum=2)
+        self.n_repeats = check_int("n_repeats", n_repeats, minimum=1)
+        if not isinstance(shuffle, bool):
+            raise TypeError(f"shuffle must be True or False; got {_short_repr(shuffle)}.")
+        if not shuffle and self.n_repeats > 1:
+            raise ValueError(
+                f"n_repeats={self.n_repeats} with shuffle=False would repeat the same folds; "
+                "use shuffle=True or n_repeats=1."
+            )
+        self.shuffle = shuffle
+
+    def resamples(self, n, root, X=None, y=None, groups=None):
+        if self.n_splits > n:
+            raise ValueError(f"n_splits={self.n_splits} is more than the number of rows ({n}).")
+        out = []
+        for r in range(self.n_repeats):
+            seed = child_seed(root, STREAM_RESAMPLE, r)
+            state = int(np.random.default_rng(seed).integers(0, 2**31 - 1)) if self.shuffle else None
+            folds = KFold(self.n_splits, shuffle=self.shuffle, random_state=state)
+            for k, (train, test) in enumerate(folds.split(np.empty((n, 1)))):
+                index = r * self.n_splits + k
+                out.append(Resample(index, r, train, test, child_seed(root, STREAM_RESAMPLE, r, k)))
+        return out
+
+    def describe(self) -> dict[str, Any]:
+        return {
+            "kind": self.kind,
+            "n_splits": self.n_splits,
+            "n_repeats": self.n_repeats,
+            "shuffle": self.shuffle,
+        }
+
+
+class _SplitterPlan(Plan):
+    """Adapter for any object with scikit-learn's ``split(X, y, groups)``."""
+
+    kind = "splitter"
+
+    def __init__(self, splitter: Any) -> None:
+        self.splitter = splitter
+
+    def resamples(self, n, root, X=None, y=None, groups=None):
+        if X is None:
+            raise ValueError("a scikit-learn splitter needs the data X.")
+        out: list[Resample] = []
+        replicate, seen = 0, np.zeros(n, dtype=bool)
+        for index, (train, test) in enumerate(self.splitter.split(X, y, groups)):
+            train = np.asarray(train, dtype=np.intp)
+            test = np.asarray(test, dtype=np.intp)
+            if train.size == 0 or test.size == 0:
+                which = "training" if train.size == 0 else "test"
+                raise ValueError(
+                    f"plan {self.splitter!r} produced an empty {which} set in split {index}; "
+                    "every split needs at least one training and one test row."
+                )
+            if seen[test].any():  # a row scored again: a new repetition has started
+                replicate, seen = replicate + 1, np.zeros(n, dtype=bool)
+            seen[test] = True
+            out.append(Resample(index, replicate, train, test, child_seed(root, STREAM_RESAMPLE, index)))
+        if not out:
+            raise ValueError(f"plan {self.splitter!r} produced no splits.")
+        return out
+
+    def describe(self) -> dict[str, Any]:
+        return {"kind": self.kind, "splitter": repr(self.splitter)}
+
+    def __repr__(self) -> str:
+        return repr(self.splitter)
+
+
+class Simulation(Plan):
+    """Fresh training sets from a known generative model ``y = truth(X) + noise``.
+
+    With the truth known, squared bias and variance are measured exactly (up to Monte-Carlo
+    error) at the evaluation points, and the noise variance is ``noise_sd ** 2``.
+
+    Parameters
+    ----------
+    truth : callable
+        ``truth(X) -> f`` with X of shape (m, p); returns m values.
+    noise_sd : float
+        Standard deviation of the Gaussian noise added to each training response (>= 0).
+    x_sampler : callable or array-like
+        ``x_sampler(rng, n) -> X`` draws a training design from a :class:`numpy.random.Generator`;
+        an array gives a fixed design, used for every training set.
+    n_train : int, optional
+        Training-set size; defaults to the length of a fixed design.
+    n_resamples : int, default=200
+        Number of simulated training sets (>= 2).
+    x_eval : array-like, optional
+        The points where bias² and variance are measured. Defaults to the fixed design.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> plan = cx.Simulation(lambda X: X[:, 0] ** 2, 0.1, np.linspace(0, 1, 20), n_resamples=50)
+    >>> plan.describe()["n_train"]
+    20
+    """
+
+    kind = "simulation"
+
+    def __init__(
+        self,
+        truth: Callable[[NDArray[np.float64]], Any],
+        noise_sd: float,
+        x_sampler: Callable[[np.random.Generator, int], Any] | Any,
+        n_train: int | None = None,
+        n_resamples: int = 200,
+        x_eval: Any = None,
+    ) -> None:
+        if not callable(truth):
+            raise TypeError(f"truth must be a callable truth(X) -> values; got {_short_repr(truth)}.")
+        self.truth = truth
+        self.noise_sd = check_float("noise_sd", noise_sd, minimum=0.0)
+        self.n_resamples = check_int("n_resamples", n_resamples, minimum=2)
+        if callable(x_sampler):
+            self.design = None
+            if n_train is None:
+                raise ValueError("n_train is required when x_sampler is a function; got None.")
+        else:
+            self.design = _as_points("x_sampler", x_sampler)
+            if n_train is not None and n_train != len(self.design):
+                raise ValueError(
+                    f"n_train={n_train!r} differs from the fixed design's {len(self.design)} rows; "
+                    "leave n_train=None for a fixed design."
+                )
+            n_train = len(self.design)
+        self.x_sampler = x_sampler
+        self.n_train = check_int("n_train", n_train, minimum=2)
+        if x_eval is None:
+            if self.design is None:
+                raise ValueError("x_eval is required when x_sampler is a function; got None.")
+            self.x_eval = self.design
+        else:
+            self.x_eval = _as_points("x_eval", x_eval)
+        self.target = self.evaluate_truth(self.x_eval, "x_eval")
+
+    def evaluate_truth(self, X: NDArray[np.float64], where: str) -> NDArray[np.float64]:
+        """Call ``truth`` and check that it returns one finite value per row of ``X``."""
+        try:
+            f = np.asarray(self.truth(X.copy()), dtype=np.float64)
+        except Exception as exc:
+            raise ValueError(f"truth raised {type(exc).__name__}: {exc} (called on {where}).") from exc
+        if f.ndim == 2 and f.shape[1] == 1:
+            f = f[:, 0]
+        if f.shape != (X.shape[0],):
+            raise ValueError(
+                f"truth must return one value per row of its input; on {where} with {X.shape[0]} "
+                f"rows it returned shape {f.shape}."
+            )
+        if not np.all(np.isfinite(f)):
+            raise ValueError(f"truth returned NaN or infinite values on {where}.")
+        return f
+
+    def draw(self, seed: np.random.SeedSequence) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """Draw one training set ``(X, y)`` from the generative model."""
+        rng = np.random.default_rng(seed)
+        if self.design is None:
+            X = _as_points("x_sampler's output", self.x_sampler(rng, self.n_train))
+            if X.shape[0] != self.n_train:
+                raise ValueError(
+                    f"x_sampler(rng, {self.n_train}) returned {X.shape[0]} rows; it must return n rows."
+                )
+            if X.shape[1] != self.x_eval.shape[1]:
+                raise ValueError(
+                    f"x_sampler returned {X.shape[1]} column(s) but x_eval has {self.x_eval.shape[1]}."
+                )
+        else:
+            X = self.design
+        f = self.evaluate_truth(X, "a training design")
+        y = f + self.noise_sd * rng.standard_normal(self.n_train)
+        return X, y
+
+    def pilot_design(self, root: np.random.SeedSequence) -> NDArray[np.float64]:
+        """All x a model of this plan will see, as far as knowable up front (for basis ranges)."""
+        if self.design is not None:
+            return np.vstack([self.design, self.x_eval])
+        X, _ = self.draw(child_seed(root, STREAM_PILOT))
+        return np.vstack([X, self.x_eval])
+
+    def resamples(self, n, root, X=None, y=None, groups=None):
+        everywhere = np.arange(self.x_eval.shape[0])
+        return [
+            Resample(b, b, None, everywhere, child_seed(root, STREAM_RESAMPLE, b))
+            for b in range(self.n_resamples)
+        ]
+
+    def describe(self) -> dict[str, Any]:
+        return {
+            "kind": self.kind,
+            "truth": getattr(self.truth, "__name__", repr(self.truth)),
+            "noise_sd": self.noise_sd,
+            "design": "fixed" if self.design is not None else "sampled",
+            "n_train": self.n_train,
+            "n_resamples": self.n_resamples,
+            "n_eval": int(self.x_eval.shape[0]),
+        }
+
+
+def _as_points(name: str, value: Any) -> NDArray[np.float64]:
+    try:
+        arr = np.array(value, dtype=np.float64, copy=True)
+    except (TypeError, ValueError):
+        raise TypeError(f"{name} must be an array of numbers; got {_short_repr(value)}.") from None
+    if arr.ndim == 1:
+        arr = arr.reshape(-1, 1)
+    if arr.ndim != 2 or arr.shape[0] == 0:
+        raise ValueError(f"{name} must be a non-empty 1-D or 2-D array; got shape {arr.shape}.")
+    if not np.all(np.isfinite(arr)):
+        raise ValueError(f"{name} contains NaN or infinite values.")
+    return arr
+
+
+def as_plan(plan: Any) -> Plan:
+    """Accept a :class:`Plan`, any scikit-learn splitter, or an int K (K-fold shorthand)."""
+    if isinstance(plan, Plan):
+        return plan
+    if isinstance(plan, numbers.Integral) and not isinstance(plan, bool):
+        return CrossValidation(int(plan))
+    if hasattr(plan, "split") and callable(plan.split):
+        return _SplitterPlan(plan)
+    raise TypeError(
+        "plan must be cx.Bootstrap(...), cx.CrossValidation(...), cx.Simulation(...), a "
+        f"scikit-learn splitter (an object with split(X, y, groups)) or an int; got {_short_repr(plan)}."
+    )

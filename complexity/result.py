@@ -1,0 +1,325 @@
+"""``SweepResult``: the curves, the recommendation, the reasons, and everything to reproduce it.
+
+Results are saved as one JSON document (UTF-8, schema below) and reload exactly: floats are
+written with Python's shortest round-trip representation, non-finite values as the strings
+``"NaN"``, ``"Infinity"`` and ``"-Infinity"``. No pickle is involved, so a saved result can be read
+by any tool. Schema (``"format": "complexity.sweep-result"``, ``"version": 1``)::
+
+    {"format", "version",
+     "capacity_name": str, "capacities": [...], "recommended": value, "rule": str,
+     "curves":    {"columns": [...], "data": {column: [...]}},
+     "rules":     [{"rule", "capacity", "reason"}, ...],
+     "stability": [share per capacity],
+     "noise":     {"value", "method", "df", "detail"},
+     "failures":  [{"capacity", "count", "first_message"}, ...],
+     "notes":     [str, ...],
+     "metadata":  {...}}
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .noise import NoiseEstimate
+
+__all__ = ["SweepResult", "load_result"]
+
+FORMAT = "complexity.sweep-result"
+VERSION = 1
+
+CAUTION = (
+    "Caution: a recommended capacity describes this data set only. Do not use the fitted model "
+    "outside the measured range of the predictors (polynomials diverge quickly beyond the data). "
+    "Where the result feeds a sensor calibration or any safety-relevant use, validate the "
+    "calibration against reference standards; local codes and licensed practice decide."
+)
+
+
+@dataclass
+class SweepResult:
+    """The outcome of :func:`complexity.sweep`.
+
+    Attributes
+    ----------
+    curves : pandas.DataFrame
+        One row per capacity (index named after the capacity, e.g. ``degree``), simplest first.
+        Columns: ``train_mse`` (training error of the model fitted on all data; for a simulation,
+        the mean over simulated training sets), ``test_mse`` (out-of-bag, held-out, or expected
+        error at new data), ``test_mse_se``, ``bias_sq``, ``variance``, ``noise``,
+        ``bias_sq_plus_noise``, bootstrap-only ``test_mse_632`` and ``test_mse_632plus``,
+        ``n_scored``, ``failed_fits``, and for least-squares ladders the closed-form criteria.
+    recommended : object
+        The capacity chosen by ``rule``.
+    rule : str
+        The rule behind ``recommended``.
+    rules : pandas.DataFrame
+        Indexed by rule name: ``capacity`` and a one-line ``reason``.
+    stability : pandas.Series
+        Share of replicates in which each capacity would have been chosen by ``rule``.
+    noise : NoiseEstimate
+        The noise variance used to split bias² from noise, with its method.
+    failures : pandas.DataFrame
+        Per capacity with failed fits: ``count`` and ``first_message``.
+    notes : list of str
+        Things a careful reader should know (warnings raised during the sweep).
+    metadata : dict
+        n, plan, ladder, seed entropy, library versions, run time, engine.
+    predictions : ndarray or None
+        With ``keep_predictions=True``: predictions of shape (n_resamples, n_points, n_capacities),
+        NaN where a point was not scored by a resample.
+
+    Examples
+    --------
+    >>> import complexity as cx
+    >>> X, y = cx.datasets.pressure_sensor()
+    >>> result = cx.sweep(cx.PolynomialLadder(range(0, 5)), X, y, plan=cx.Bootstrap(20),
+    ...                   random_state=0)
+    >>> list(result.curves.columns[:3])
+    ['train_mse', 'test_mse', 'test_mse_se']
+    """
+
+    curves: pd.DataFrame
+    recommended: Any
+    rule: str
+    rules: pd.DataFrame
+    stability: pd.Series
+    noise: NoiseEstimate
+    failures: pd.DataFrame
+    notes: list[str] = field(default_factory=list)
+    metadata: dict[str, Any] = field(default_factory=dict)
+    predictions: np.ndarray | None = field(default=None, repr=False)
+    coefficient_tables: dict[Any, pd.DataFrame] | None = field(default=None, repr=False)
+
+    def coefficients(self, capacity: Any) -> pd.DataFrame:
+        """Coefficients of the model fitted on all data at ``capacity``, in the user's units.
+
+        Available for least-squares ladders on the exact engine: a DataFrame indexed by term
+        (e.g. ``x^2`` or a predictor's name) with ``estimate`` and ``std_error``.
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(10), random_state=0)
+        >>> list(r.coefficients(1).columns)
+        ['estimate', 'std_error']
+        """
+        if not self.coefficient_tables:
+            raise ValueError(
+                "coefficients are available for least-squares ladders swept with the exact engine; "
+                "this result has none."
+            )
+        if capacity not in self.coefficient_tables:
+            raise ValueError(
+                f"capacity must be one of {list(self.coefficient_tables)}; got {capacity!r}."
+            )
+        return self.coefficient_tables[capacity]
+
+    @property
+    def capacity_name(self) -> str:
+        return str(self.curves.index.name)
+
+    def summary(self) -> str:
+        """A plain-text report: the curves table, the recommendation with its reason, cautions.
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 4)), X, y, plan=cx.Bootstrap(20), random_state=0)
+        >>> "Recommended" in r.summary()
+        True
+        """
+        name = self.capacity_name
+        shown = [c for c in ("train_mse", "test_mse", "test_mse_se", "bias_sq", "variance", "noise")
+                 if c in self.curves]
+        extra = [c for c in ("loocv", "aicc", "bic") if c in self.curves]
+        table = self.curves[shown + extra].copy()
+        table["chosen"] = self.stability.reindex(self.curves.index).to_numpy()
+        meta = self.metadata
+        lines = [
+            f"Capacity sweep: {meta.get('ladder_repr', '')} on {meta.get('n_samples', '?')} rows, "
+            f"plan {meta.get('plan_repr', '')}, seed {meta.get('seed_entropy', '?')}",
+            f"Noise variance {self.noise.value:.4g} ({self.noise.method}: {self.noise.detail})",
+            "",
+            table.to_string(float_format=lambda v: f"{v:.4g}"),
+            "",
+            "('chosen' = share of replicates in which the rule picks that row)",
+            "",
+            f"Recommended {name}: {self.recommended}  (rule '{self.rule}': "
+            f"{self.rules.loc[self.rule, 'reason']})",
+        ]
+        others = self.rules.drop(index=self.rule)
+        if len(others):
+            lines.append("Other rules:")
+            lines += [f"  {r:7s} -> {row.capacity}: {row.reason}" for r, row in others.iterrows()]
+        if len(self.failures):
+            lines.append("Failed fits:")
+            lines += [
+                f"  {name} {cap}: {row['count']} failed, first: {row['first_message']}"
+                for cap, row in self.failures.iterrows()
+            ]
+        if self.notes:
+            lines.append("Notes:")
+            lines += [f"  - {n}" for n in self.notes]
+        lines += ["", CAUTION]
+        return "\n".join(lines)
+
+    def __repr__(self) -> str:
+        return (
+            f"<SweepResult: {self.capacity_name} {list(self.curves.index)}, recommended "
+            f"{self.recommended!r} by '{self.rule}'>"
+        )
+
+    def _repr_html_(self) -> str:
+        shown = [c for c in self.curves.columns if c not in ("n_scored", "failed_fits")]
+        reason = html.escape(str(self.rules.loc[self.rule, "reason"]))
+        notes = "".join(f"<li>{html.escape(n)}</li>" for n in self.notes)
+        return (
+            f"<div><p><b>Recommended {html.escape(self.capacity_name)}: "
+            f"{html.escape(str(self.recommended))}</b> (rule <code>{html.escape(self.rule)}</code>: "
+            f"{reason})</p>"
+            f"<p>Noise variance {self.noise.value:.4g} ({html.escape(self.noise.method)})</p>"
+            f"{self.curves[shown].to_html(float_format=lambda v: f'{v:.4g}')}"
+            f"{'<ul>' + notes + '</ul>' if notes else ''}"
+            f"<p><small>{html.escape(CAUTION)}</small></p></div>"
+        )
+
+    # ------------------------------------------------------------------ persistence
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON document described in the module docstring (a plain dict)."""
+        caps = [_plain(c) for c in self.curves.index]
+        return {
+            "format": FORMAT,
+            "version": VERSION,
+            "capacity_name": self.capacity_name,
+            "capacities": caps,
+            "recommended": _plain(self.recommended),
+            "rule": self.rule,
+            "curves": {
+                "columns": list(self.curves.columns),
+                "data": {c: [_plain(v) for v in self.curves[c].tolist()] for c in self.curves},
+            },
+            "rules": [
+                {"rule": r, "capacity": _plain(row.capacity), "reason": row.reason}
+                for r, row in self.rules.iterrows()
+            ],
+            "stability": [_plain(v) for v in self.stability.tolist()],
+            "noise": self.noise.to_dict(),
+            "failures": [
+                {"capacity": _plain(cap), "count": int(row["count"]), "first_message": row["first_message"]}
+                for cap, row in self.failures.iterrows()
+            ],
+            "notes": list(self.notes),
+            "metadata": _plain_tree(self.metadata),
+        }
+
+    def save(self, path: str | Path) -> Path:
+        """Write the result as a JSON document; :func:`load_result` reads it back exactly.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(10), random_state=1)
+        >>> path = r.save(pathlib.Path(tempfile.mkdtemp()) / "sweep.json")
+        >>> cx.load_result(path).curves.equals(r.curves)
+        True
+        """
+        path = Path(path)
+        text = json.dumps(_encode(self.to_dict()), indent=1, allow_nan=False)
+        path.write_text(text + "\n", encoding="utf-8")
+        return path
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, np.generic):
+        return v.item()
+    return v
+
+
+def _plain_tree(v: Any) -> Any:
+    if isinstance(v, dict):
+        return {str(k): _plain_tree(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_plain_tree(x) for x in v]
+    if isinstance(v, np.ndarray):
+        return [_plain_tree(x) for x in v.tolist()]
+    return _plain(v)
+
+
+def _encode(v: Any) -> Any:
+    if isinstance(v, float) and not math.isfinite(v):
+        return "NaN" if math.isnan(v) else ("Infinity" if v > 0 else "-Infinity")
+    if isinstance(v, dict):
+        return {k: _encode(x) for k, x in v.items()}
+    if isinstance(v, list):
+        return [_encode(x) for x in v]
+    return v
+
+
+_SPECIAL = {"NaN": math.nan, "Infinity": math.inf, "-Infinity": -math.inf}
+
+
+def _decode_column(values: list[Any]) -> list[Any]:
+    return [_SPECIAL.get(v, v) if isinstance(v, str) else v for v in values]
+
+
+def load_result(path: str | Path) -> SweepResult:
+    """Read a result written by :meth:`SweepResult.save`.
+
+    Examples
+    --------
+    See :meth:`SweepResult.save`.
+    """
+    doc = json.loads(Path(path).read_text(encoding="utf-8"))
+    if doc.get("format") != FORMAT:
+        raise ValueError(f"{path} is not a saved sweep result (format {doc.get('format')!r}).")
+    if doc.get("version") != VERSION:
+        raise ValueError(f"{path} has result version {doc.get('version')!r}; this library reads {VERSION}.")
+    index = pd.Index(doc["capacities"], name=doc["capacity_name"])
+    data = {c: _decode_column(doc["curves"]["data"][c]) for c in doc["curves"]["columns"]}
+    curves = pd.DataFrame(data, index=index, columns=doc["curves"]["columns"])
+    for c in curves.columns:
+        if c in ("n_scored", "failed_fits"):
+            curves[c] = curves[c].astype(np.int64)
+        else:
+            curves[c] = curves[c].astype(np.float64)
+    rules = pd.DataFrame(doc["rules"], columns=["rule", "capacity", "reason"]).set_index("rule")
+    stability = pd.Series(
+        np.array(_decode_column(doc["stability"]), dtype=np.float64),
+        index=pd.Index(doc["capacities"]),
+        name="share_chosen",
+    )
+    failures = _failures_frame(
+        [(f["capacity"], f["count"], f["first_message"]) for f in doc["failures"]], doc["capacity_name"]
+    )
+    return SweepResult(
+        curves=curves,
+        recommended=doc["recommended"],
+        rule=doc["rule"],
+        rules=rules,
+        stability=stability,
+        noise=NoiseEstimate.from_dict(doc["noise"]),
+        failures=failures,
+        notes=list(doc["notes"]),
+        metadata=doc["metadata"],
+    )
+
+
+def _failures_frame(rows: list[tuple[Any, int, str]], capacity_name: str) -> pd.DataFrame:
+    frame = pd.DataFrame(
+        {"count": [int(r[1]) for r in rows], "first_message": [r[2] for r in rows]},
+        index=pd.Index([r[0] for r in rows], name=capacity_name),
+    )
+    frame["count"] = frame["count"].astype(np.int64)
+    return frame

@@ -1,0 +1,339 @@
+"""``sweep``: run a ladder over a plan and return a :class:`~complexity.SweepResult`.
+
+Data flows one way: validate -> build the ladder's models -> draw the resamples -> an engine
+fits every capacity on every resample -> accumulators -> decomposition -> rules -> result.
+"""
+
+from __future__ import annotations
+
+import platform
+import sys
+import time
+import warnings
+from importlib import metadata as _md
+from typing import Any
+
+import numpy as np
+
+from ._progress import FitCounter
+from ._validation import _short_repr, as_seed_sequence, check_option, check_X_y
+from .accumulate import PointAccumulator
+from .decompose import curves_table, replicate_curves
+from .engine import FullFit, Problem
+from .engine import generic as generic_engine
+from .ladders import Ladder
+from .noise import NoiseEstimate, estimate_noise
+from .plans import Plan, Simulation, as_plan
+from .result import SweepResult, _failures_frame
+from .rules import CRITERIA, RULES, choose, rule_table, stability
+
+__all__ = ["CapacityWarning", "SweepFailedError", "sweep"]
+
+ENGINES = ("auto", "exact", "generic")
+
+
+class SweepFailedError(RuntimeError):
+    """Raised when every fit at every capacity failed."""
+
+
+class CapacityWarning(UserWarning):
+    """A capacity is fragile on this data (e.g. it interpolates, or fits failed)."""
+
+
+def _versions() -> dict[str, str]:
+    out = {"python": platform.python_version()}
+    for pkg in ("complexity", "numpy", "scipy", "scikit-learn", "pandas", "joblib"):
+        try:
+            out[pkg] = _md.version(pkg)
+        except _md.PackageNotFoundError:
+            out[pkg] = "unknown"
+    return out
+
+
+def _linear_engine() -> Any:
+    """The exact least-squares engine module, or None where it is not available."""
+    try:
+        from .engine import linear
+    except ImportError:
+        return None
+    return linear if hasattr(linear, "run") and hasattr(linear, "supports") else None
+
+
+def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
+    check_option("engine", engine, ENGINES)
+    linear = _linear_engine()
+    fits_exact = linear is not None and problem.ladder.linear_least_squares and linear.supports(problem)
+    if engine == "exact" and not fits_exact:
+        raise ValueError(
+            f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
+            f"the default estimator) without sample weights; got {problem.ladder!r}. "
+            "Use engine='auto' or 'generic'."
+        )
+    if engine == "generic" or not fits_exact:
+        return generic_engine, "generic"
+    return linear, "exact"
+
+
+def _noise_for(
+    noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | None
+) -> NoiseEstimate:
+    if isinstance(plan, Simulation):
+        return NoiseEstimate(
+            value=plan.noise_sd**2,
+            method="given",
+            df=None,
+            detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
+        )
+    return estimate_noise(X, y, noise)
+
+
+def _all_failed_error(acc: PointAccumulator, full: FullFit | None, capacities: tuple) -> SweepFailedError:
+    messages = dict(acc.failures.first)
+    if full is not None:
+        for c, m in full.failures.items():
+            messages.setdefault(c, m)
+    first_c = min(messages) if messages else 0
+    return SweepFailedError(
+        f"every fit failed at every capacity; first failure (capacity {capacities[first_c]!r}): "
+        f"{messages.get(first_c, 'unknown')}"
+    )
+
+
+def sweep(
+    ladder: Ladder,
+    X: Any = None,
+    y: Any = None,
+    *,
+    plan: Any = None,
+    noise: Any = "auto",
+    rule: str = "one-se",
+    n_jobs: int | None = None,
+    random_state: Any = None,
+    progress: bool = False,
+    engine: str = "auto",
+    keep_predictions: bool = False,
+    groups: Any = None,
+    sample_weight: Any = None,
+) -> SweepResult:
+    """Sweep a capacity ladder over resampled training sets and recommend a capacity.
+
+    Parameters
+    ----------
+    ladder : Ladder
+        :class:`PolynomialLadder`, :class:`FeatureLadder` or :class:`ParamLadder`.
+    X : array-like of shape (n_samples,) or (n_samples, n_features), optional
+        Predictors (a DataFrame keeps its column names). May be None with a :class:`Simulation`.
+    y : array-like of shape (n_samples,), optional
+        Response.
+    plan : Plan, scikit-learn splitter or int, default=Bootstrap(200)
+        Where training sets come from. An int K means ``CrossValidation(K)``.
+    noise : "auto", "replicates", "differences", "neighbours" or float, default="auto"
+        How to estimate the noise variance sigma² that separates squared bias from noise; a float
+        is taken as sigma² itself (a variance, not an SD). Ignored by a Simulation (noise known).
+    rule : str, default="one-se"
+        The rule behind ``result.recommended``: "min", "one-se", or for least-squares ladders
+        "loocv", "gcv", "aic", "aicc", "bic", "cp".
+    n_jobs : int, optional
+        Workers for :class:`joblib.Parallel`; results are identical for any value.
+    random_state : None, int, SeedSequence or Generator
+        One seed for the whole sweep; its entropy is stored so a run with None can be repeated.
+    progress : bool, default=False
+        Show a progress bar (counts fits) on stderr.
+    engine : {"auto", "exact", "generic"}, default="auto"
+        "auto" uses the exact least-squares engine where the ladder allows it.
+    keep_predictions : bool, default=False
+        Keep every prediction in ``result.predictions`` (memory: resamples x points x capacities).
+    groups : array-like, optional
+        Group labels passed to a group-aware scikit-learn splitter.
+    sample_weight : array-like, optional
+        Per-row weights passed to the estimator's ``fit`` (generic engine).
+
+    Returns
+    -------
+    SweepResult
+
+    Notes
+    -----
+    The expected test error at a point splits into noise + squared bias + variance. Resampling
+    one data set measures the variance and the sum noise + squared bias (``bias_sq_plus_noise``);
+    the split of that sum needs a noise estimate (see :mod:`complexity.decompose`).
+
+    Examples
+    --------
+    >>> import complexity as cx
+    >>> X, y = cx.datasets.pressure_sensor()
+    >>> result = cx.sweep(cx.PolynomialLadder(degrees=range(0, 7)), X, y,
+    ...                   plan=cx.Bootstrap(50), random_state=0)
+    >>> result.recommended in range(0, 7)
+    True
+    """
+    started = time.perf_counter()
+    if not isinstance(ladder, Ladder):
+        raise TypeError(
+            "ladder must be cx.PolynomialLadder(...), cx.FeatureLadder(...) or cx.ParamLadder(...); "
+            f"got {_short_repr(ladder)}."
+        )
+    from .plans import Bootstrap
+
+    plan = Bootstrap(200) if plan is None else as_plan(plan)
+    check_option("rule", rule, RULES)
+    for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
+        if not isinstance(flag, (bool, np.bool_)):
+            raise TypeError(f"{name} must be True or False; got {_short_repr(flag)}.")
+    root = as_seed_sequence(random_state)
+    notes: list[str] = []
+
+    if isinstance(plan, Simulation):
+        Xd = yd = None
+        n_obs = None
+        if X is not None or y is not None:
+            data = check_X_y(X, y)
+            n_obs = data.X.shape[0]
+        design = plan.pilot_design(root)
+        notes += ladder.check_data(design, None)
+        models = ladder.build(design, None)
+        X_eval, target = plan.x_eval, plan.target
+        w = None
+        names = None
+    else:
+        data = check_X_y(X, y, groups=groups)
+        Xd, yd, names = data.X, data.y, data.feature_names
+        n_obs = Xd.shape[0]
+        notes += ladder.check_data(Xd, names)
+        models = ladder.build(Xd, names)
+        X_eval, target, design = Xd, yd, Xd
+        w = None
+        if sample_weight is not None:
+            w = np.array(sample_weight, dtype=np.float64, copy=True)
+            if w.shape != (n_obs,) or not np.all(np.isfinite(w)) or np.any(w < 0):
+                raise ValueError(
+                    f"sample_weight must hold one finite, non-negative weight per row ({n_obs}); "
+                    f"got shape {w.shape}."
+                )
+
+    problem = Problem(
+        ladder=ladder,
+        models=models,
+        X=Xd,
+        y=yd,
+        X_eval=X_eval,
+        target=target,
+        plan=plan,
+        root=root,
+        design_X=design,
+        groups=data.groups if not isinstance(plan, Simulation) else None,
+        sample_weight=w,
+    )
+    eng, engine_used = _choose_engine(engine, problem)
+    if w is not None and engine_used != "generic":  # pragma: no cover - guarded in supports()
+        raise ValueError("sample_weight needs the generic engine.")
+    noise_est = _noise_for(noise, plan, Xd, yd)
+
+    resamples = plan.resamples(X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups)
+    n_replicates = max(r.replicate for r in resamples) + 1
+    C = len(ladder.capacities)
+    acc = PointAccumulator(X_eval.shape[0], C, len(resamples), n_replicates, keep_predictions)
+
+    full: FullFit | None = None
+    if not isinstance(plan, Simulation):
+        full = eng.fit_full(problem)
+
+    counter = FitCounter(len(resamples) * C, progress)
+    try:
+        for outcome in eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update):
+            acc.add(outcome)
+    finally:
+        counter.close()
+
+    if acc.count.sum() == 0:
+        raise _all_failed_error(acc, full, ladder.capacities)
+
+    curves, more_notes = curves_table(
+        acc,
+        ladder.capacities,
+        ladder.capacity_name,
+        noise=noise_est.value,
+        plan_kind=plan.kind,
+        train_mse=None if full is None else full.train_mse,
+        y=yd,
+        fitted=None if full is None else full.fitted,
+    )
+    notes += more_notes
+    if full is not None and full.criteria is not None:
+        for col in full.criteria.columns:
+            curves[col] = full.criteria[col].to_numpy()
+    if full is not None and full.diagnostics is not None:
+        for col in full.diagnostics.columns:
+            curves[col] = full.diagnostics[col].to_numpy()
+
+    failed = {}
+    for c in range(C):
+        count = int(acc.failures.count[c]) + (1 if full is not None and c in full.failures else 0)
+        if count:
+            first = acc.failures.first.get(c) or (full.failures.get(c) if full else "")
+            failed[ladder.capacities[c]] = (count, first)
+    failures = _failures_frame(
+        [(cap, cnt, msg) for cap, (cnt, msg) in failed.items()], ladder.capacity_name
+    )
+    if len(failures):
+        notes.append(
+            f"{int(failures['count'].sum())} fit(s) failed at {ladder.capacity_name} "
+            f"{', '.join(str(k) for k in failures.index)}; see result.failures."
+        )
+
+    if rule in CRITERIA and rule not in curves:
+        raise ValueError(
+            f"rule={rule!r} needs the closed-form criteria of a least-squares ladder on the exact "
+            "engine; use rule='min' or 'one-se' here."
+        )
+    table = rule_table(curves)
+    recommended = ladder.capacities[choose(rule, curves)]
+    rep_err, rep_se = replicate_curves(acc, noise_est.value, isinstance(plan, Simulation))
+    stab_rule = rule if rule in ("min", "one-se") else "min"
+    stab = stability(rep_err, rep_se, ladder.capacities, stab_rule)
+    if n_replicates == 1:
+        notes.append(
+            "selection stability needs several replicates; this plan has one (use n_repeats >= 2 "
+            "or Bootstrap)."
+        )
+    for note in notes:
+        warnings.warn(note, CapacityWarning, stacklevel=2)
+
+    predictions = None
+    if acc.residuals is not None:
+        predictions = acc.residuals + target[None, :, None]
+
+    metadata = {
+        "n_samples": n_obs,
+        "n_features": int(X_eval.shape[1]),
+        "feature_names": list(names) if names else None,
+        "ladder": ladder.describe(),
+        "ladder_repr": repr(ladder),
+        "plan": plan.describe(),
+        "plan_repr": repr(plan),
+        "n_resamples": len(resamples),
+        "n_replicates": n_replicates,
+        "seed_entropy": int(root.entropy) if isinstance(root.entropy, int) else str(root.entropy),
+        "seed_spawn_key": list(root.spawn_key),
+        "random_state": random_state if isinstance(random_state, (int, type(None))) else repr(random_state),
+        "engine": engine_used,
+        "stability_rule": stab_rule,
+        "versions": _versions(),
+        "run_seconds": round(time.perf_counter() - started, 4),
+        "x_range": [[float(a), float(b)] for a, b in zip(design.min(axis=0), design.max(axis=0))],
+        "command": " ".join(sys.argv[:1]) if sys.argv and sys.argv[0] else None,
+    }
+    return SweepResult(
+        curves=curves,
+        recommended=recommended,
+        rule=rule,
+        rules=table,
+        stability=stab,
+        noise=noise_est,
+        failures=failures,
+        notes=notes,
+        metadata=metadata,
+        predictions=predictions,
+        coefficient_tables=None if full is None else full.coefficients,
+    )
+
