@@ -43,10 +43,10 @@ def pressure_sensor_drift(temperature_c: ArrayLike) -> NDArray[np.float64]:
     --------
     >>> from complexity.datasets import pressure_sensor_drift
     >>> round(float(pressure_sensor_drift([20.0])[0]), 4)
-    0.3225
+    0.2351
     """
     t = (np.asarray(temperature_c, dtype=np.float64) - 20.0) / 40.0
-    return 0.15 + 0.35 * t + 0.25 / (1.0 + np.exp(-4.0 * (t - 0.3))) - 0.12 * t**2
+    return 0.15 + 0.35 * t + 0.6 / (1.0 + np.exp(-6.0 * (t - 0.3))) - 0.12 * t**2
 
 
 def pressure_sensor(*, as_frame: bool = True) -> tuple[pd.DataFrame, pd.Series] | tuple[NDArray, NDArray]:

@@ -27,7 +27,7 @@ from numpy.typing import NDArray
 
 from .accumulate import PointAccumulator
 
-__all__ = ["bootstrap_632", "curves_table", "replicate_curves"]
+__all__ = ["bootstrap_632", "curves_table", "no_information_error", "replicate_curves"]
 
 #: weights of the .632 estimators, rounded as in Efron (1983) and Efron & Tibshirani (1997)
 W632 = 0.632
@@ -54,10 +54,26 @@ def _split_se(loss: NDArray[np.float64], n: NDArray[np.int64]) -> float:
     return float(np.std(scores, ddof=1) / np.sqrt(ok.sum()))
 
 
-def bootstrap_632(
-    err_bar: float, err1: float, y: NDArray[np.float64], fitted: NDArray[np.float64]
-) -> tuple[float, float]:
-    """The .632 and .632+ bootstrap estimates of prediction error (squared loss).
+def no_information_error(y: NDArray[np.float64], fitted: NDArray[np.float64]) -> float:
+    """No-information error rate gamma for squared loss (Efron & Tibshirani 1997).
+
+    The error of the full-data predictions if responses and predictors were unrelated:
+    ``(1/n^2) sum_i sum_j (y_i - fitted_j)^2 = var0(y) + var0(fitted) + (mean y - mean fitted)^2``.
+
+    Examples
+    --------
+    METHODS.md §3 worked check: x = 0..4, y = (1, 3, 2, 5, 4), least-squares line.
+
+    >>> import numpy as np
+    >>> y = np.array([1.0, 3.0, 2.0, 5.0, 4.0])
+    >>> round(no_information_error(y, np.array([1.4, 2.2, 3.0, 3.8, 4.6])), 10)
+    3.28
+    """
+    return float(np.var(y) + np.var(fitted) + (np.mean(y) - np.mean(fitted)) ** 2)
+
+
+def bootstrap_632(err_bar: float, err1: float, gamma: float) -> tuple[float, float]:
+    """The .632 and .632+ bootstrap estimates of prediction error.
 
     Parameters
     ----------
@@ -65,9 +81,8 @@ def bootstrap_632(
         Training (apparent) error of the model fitted on all the data.
     err1 : float
         Leave-one-out bootstrap error (out-of-bag, averaged per point, then over points).
-    y, fitted : ndarray
-        Responses and full-data fitted values, for the no-information error rate
-        ``gamma = var0(y) + var0(fitted) + (mean y - mean fitted)^2``.
+    gamma : float
+        No-information error rate (:func:`no_information_error`).
 
     Returns
     -------
@@ -78,18 +93,16 @@ def bootstrap_632(
     Efron (1983); Efron & Tibshirani (1997), with their boundary rules: ``Err1' = min(Err1,
     gamma)`` and the relative overfitting rate ``R' = (Err1' - err_bar) / (gamma - err_bar)`` if
     both differences are positive, else 0; then ``Err632+ = Err632 + (Err1' - err_bar) * .368 *
-    .632 * R' / (1 - .368 R')``. Weights use the rounded .632/.368.
+    .632 * R' / (1 - .368 R')``. Weights use the rounded .632/.368, as the papers do.
 
     Examples
     --------
-    >>> import numpy as np
-    >>> y = np.array([1.0, 3.0, 2.0, 5.0, 4.0])
-    >>> fitted = np.array([1.4, 2.2, 3.0, 3.8, 4.6])   # the least-squares line
-    >>> e632, e632p = bootstrap_632(0.72, 2.0, y, fitted)
-    >>> round(e632, 4), round(e632p, 4)
-    (1.5290000000000001, 1.6608)
+    METHODS.md §3 worked check: err_bar = 0.1, Err1 = 0.3, gamma = 0.5.
+
+    >>> e632, e632p = bootstrap_632(0.1, 0.3, 0.5)
+    >>> round(e632, 6), round(e632p, 6)
+    (0.2264, 0.254902)
     """
-    gamma = float(np.var(y) + np.var(fitted) + (np.mean(y) - np.mean(fitted)) ** 2)
     err632 = W368 * err_bar + W632 * err1
     err1p = min(err1, gamma)
     if err1p > err_bar and gamma > err_bar:
@@ -172,7 +185,7 @@ def curves_table(
         if plan_kind == "bootstrap" and train_mse is not None and y is not None and fitted is not None:
             if np.isfinite(train_mse[c]) and n_pts:
                 row["test_mse_632"], row["test_mse_632plus"] = bootstrap_632(
-                    float(train_mse[c]), err, y, fitted[:, c]
+                    float(train_mse[c]), err, no_information_error(y, fitted[:, c])
                 )
             else:
                 row["test_mse_632"] = row["test_mse_632plus"] = np.nan

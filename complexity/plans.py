@@ -388,7 +388,7 @@ def as_plan(plan: Any) -> Plan:
         return plan
     if isinstance(plan, numbers.Integral) and not isinstance(plan, bool):
         return CrossValidation(int(plan))
-    if hasattr(plan, "split") and callable(plan.split):
+    if not isinstance(plan, (str, bytes)) and callable(getattr(plan, "split", None)):
         return _SplitterPlan(plan)
     raise TypeError(
         "plan must be cx.Bootstrap(...), cx.CrossValidation(...), cx.Simulation(...), a "
