@@ -16,8 +16,9 @@ from typing import Any
 import numpy as np
 
 from ._progress import FitCounter
-from ._validation import _short_repr, as_seed_sequence, check_option, check_X_y
+from ._validation import _short_repr, check_option, check_X_y
 from .accumulate import PointAccumulator
+from .checkpoint import resume, seed_for
 from .decompose import curves_table, replicate_curves
 from .engine import FullFit, Problem
 from .engine import generic as generic_engine
@@ -114,6 +115,7 @@ def sweep(
     keep_predictions: bool = False,
     groups: Any = None,
     sample_weight: Any = None,
+    checkpoint: Any = None,
 ) -> SweepResult:
     """Sweep a capacity ladder over resampled training sets and recommend a capacity.
 
@@ -147,6 +149,12 @@ def sweep(
         Group labels passed to a group-aware scikit-learn splitter.
     sample_weight : array-like, optional
         Per-row weights passed to the estimator's ``fit`` (generic engine).
+    checkpoint : str or os.PathLike, optional
+        A folder where every finished resample is stored as it completes. Rerunning the same call
+        after an interruption reads the finished resamples back and fits only the rest; the
+        result is bit-identical to an uninterrupted run. A folder written by a different sweep
+        (other data, ladder, plan, seed, engine or library version) is refused. See
+        :mod:`complexity.checkpoint`.
 
     Returns
     -------
@@ -180,7 +188,7 @@ def sweep(
     for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
         if not isinstance(flag, (bool, np.bool_)):
             raise TypeError(f"{name} must be True or False; got {_short_repr(flag)}.")
-    root = as_seed_sequence(random_state)
+    root = seed_for(checkpoint, random_state)  # resuming without a seed reuses the stored one
     notes: list[str] = []
 
     if isinstance(plan, Simulation):
@@ -240,7 +248,14 @@ def sweep(
 
     counter = FitCounter(len(resamples) * C, progress)
     try:
-        for outcome in eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update):
+        outcomes = (
+            eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
+            if checkpoint is None
+            else resume(
+                checkpoint, eng, engine_used, problem, resamples, n_jobs=n_jobs, on_done=counter.update
+            )
+        )
+        for outcome in outcomes:
             acc.add(outcome)
     finally:
         counter.close()
