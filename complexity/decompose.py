@@ -26,6 +26,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from .accumulate import PointAccumulator
+from .ladders import capacity_index
 
 __all__ = ["bootstrap_632", "curves_table", "no_information_error", "replicate_curves"]
 
@@ -192,7 +193,7 @@ def curves_table(
         row["n_scored"] = n_pts
         row["failed_fits"] = int(acc.failures.count[c])
         rows.append(row)
-    curves = pd.DataFrame(rows, index=pd.Index(list(capacities), name=capacity_name))
+    curves = pd.DataFrame(rows, index=capacity_index(capacities, capacity_name))
     if curves["variance"].isna().all():
         notes.append(
             "variance and bias_sq need every point predicted by at least two models; this plan "

@@ -9,10 +9,12 @@ from __future__ import annotations
 
 import math
 import numbers
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from typing import Any
 
 import numpy as np
+import pandas as pd
+import pandas as pd
 from numpy.typing import NDArray
 from sklearn.base import BaseEstimator, TransformerMixin, clone
 from sklearn.dummy import DummyRegressor
@@ -210,17 +212,129 @@ class PolynomialLadder(Ladder):
         return {"kind": "polynomial", "degrees": list(self.degrees), "domain": self.domain}
 
 
-class _FirstColumns(TransformerMixin, BaseEstimator):
-    """Keep the first ``k`` columns of X in the order ``order`` (a list of column positions)."""
+#: the built-in rankings a FeatureLadder can recompute inside every training set
+RANKINGS = ("correlation", "f-test")
 
-    def __init__(self, k: int = 1, order: Sequence[int] | None = None) -> None:
+
+def _rank_correlation(X: NDArray[np.float64], y: NDArray[np.float64]) -> NDArray[np.intp]:
+    """Column positions by decreasing absolute Pearson correlation with y (ties: lower first).
+
+    A constant column (or a constant y) has no correlation; it ranks after every other column.
+    """
+    Xc = X - X.mean(axis=0)
+    yc = y - y.mean()
+    scale = np.sqrt(np.einsum("ij,ij->j", Xc, Xc)) * np.sqrt(yc @ yc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        score = np.abs(Xc.T @ yc) / scale
+    score[~np.isfinite(score)] = -1.0
+    return np.argsort(-score, kind="stable")
+
+
+def _rank_forward_f(
+    X: NDArray[np.float64], y: NDArray[np.float64], n_steps: int
+) -> NDArray[np.intp]:
+    """Forward selection by the partial F statistic (F-to-enter), with an intercept.
+
+    At each step the column with the largest partial F given the columns already chosen enters.
+    For a fixed current model that is the column whose entry reduces the residual sum of squares
+    most, i.e. the largest ``(q_j . r)^2 / (q_j . q_j)`` with ``q_j`` the column made orthogonal to
+    the chosen ones (and the intercept) and ``r`` the current residual. The first step is the
+    univariate F test, which ranks like the absolute correlation. Columns that are (numerically)
+    in the span of the chosen ones cannot enter; they follow, in column order, once no column can.
+    """
+    p = X.shape[1]
+    R = X - X.mean(axis=0)
+    r = y - y.mean()
+    size0 = np.einsum("ij,ij->j", R, R)
+    free = np.ones(p, dtype=bool)
+    chosen: list[int] = []
+    for _ in range(min(n_steps, p)):
+        den = np.einsum("ij,ij->j", R, R)
+        usable = free & (den > 1e-10 * np.maximum(size0, np.finfo(float).tiny))
+        if not usable.any():
+            break
+        with np.errstate(divide="ignore", invalid="ignore"):
+            score = np.where(usable, (R.T @ r) ** 2 / den, -1.0)
+        j = int(np.argmax(score))  # first position on ties
+        q = R[:, j] / np.sqrt(den[j])
+        r = r - q * (q @ r)
+        R = R - np.outer(q, q @ R)
+        free[j] = False
+        chosen.append(j)
+    rest = [j for j in range(p) if free[j]]
+    return np.array(chosen + rest, dtype=np.intp)
+
+
+def _callable_name(func: Any) -> str:
+    return getattr(func, "__qualname__", None) or getattr(func, "__name__", None) or repr(func)
+
+
+def _check_ranking(func: Any, ranking: Any, p: int, n_needed: int) -> NDArray[np.intp]:
+    """Validate what a user's ranking function returned."""
+    name = _callable_name(func)
+    arr = np.asarray(ranking)
+    if arr.ndim != 1 or arr.dtype.kind not in "iu":
+        raise TypeError(
+            f"order={name} must return a 1-D sequence of column positions (ints), best first; "
+            f"got {_short_repr(ranking)}."
+        )
+    if arr.size < n_needed:
+        raise ValueError(
+            f"order={name} returned {arr.size} column position(s), but {n_needed} are needed; "
+            "return at least as many positions as the largest count (e.g. a full ranking)."
+        )
+    if arr.size and (arr.min() < 0 or arr.max() >= p):
+        raise ValueError(
+            f"order={name} returned column position(s) outside 0..{p - 1}: "
+            f"{_short_repr(arr.tolist())}."
+        )
+    if np.unique(arr).size != arr.size:
+        raise ValueError(
+            f"order={name} returned a column more than once: {_short_repr(arr.tolist())}."
+        )
+    return arr.astype(np.intp)
+
+
+def _ranking(
+    order: Any, X: NDArray[np.float64], y: NDArray[np.float64], n_needed: int
+) -> NDArray[np.intp]:
+    """Column positions, best first, by the ranked ``order`` computed on ``(X, y)`` only.
+
+    At least ``n_needed`` positions are returned.
+    """
+    if isinstance(order, str):
+        if order == "correlation":
+            return _rank_correlation(X, y)
+        return _rank_forward_f(X, y, n_needed)
+    return _check_ranking(order, order(X, y), X.shape[1], n_needed)
+
+
+class _FirstColumns(TransformerMixin, BaseEstimator):
+    """Keep ``k`` columns of X: the first k of a fixed order, or the best k by a ranking.
+
+    ``order`` is None (column order), a list of column positions, or a ranked order
+    (``"correlation"``, ``"f-test"`` or a callable ``(X, y) -> positions``); a ranked order is
+    computed in :meth:`fit`, on the training data it is given only, so inside a resampling loop
+    it is recomputed for every training set.
+    """
+
+    def __init__(self, k: int = 1, order: Any = None) -> None:
         self.k = k
         self.order = order
 
     def fit(self, X: Any, y: Any = None) -> _FirstColumns:
-        X = np.asarray(X)
-        order = np.arange(X.shape[1]) if self.order is None else np.asarray(self.order)
-        self.columns_ = order[: self.k].astype(int)
+        X = np.asarray(X, dtype=np.float64)
+        if self.order is None:
+            order = np.arange(X.shape[1])
+        elif isinstance(self.order, str) or callable(self.order):
+            if y is None:
+                raise ValueError(
+                    f"order={self.order!r} ranks columns by their relation to y; y is None."
+                )
+            order = _ranking(self.order, X, np.asarray(y, dtype=np.float64), self.k)
+        else:
+            order = np.asarray(self.order)
+        self.columns_ = order[: self.k].astype(np.intp)
         self.n_features_in_ = X.shape[1]
         return self
 
@@ -231,23 +345,45 @@ class _FirstColumns(TransformerMixin, BaseEstimator):
 class FeatureLadder(Ladder):
     """The number of predictors as the capacity: the model at count ``k`` uses the first k.
 
+    The order in which predictors enter is either fixed (given, or the column order of X) or
+    *ranked*: recomputed from the training rows of every resample only, never from all the data.
+    Ranking on all the data and then resampling only the final fit lets the held-out rows choose
+    the predictors, and the error estimate becomes optimistic even when y is unrelated to X
+    (Ambroise & McLachlan 2002; see METHODS.md §11).
+
     Parameters
     ----------
     counts : iterable of int, default=range(1, 21)
         Numbers of predictors to use (0 means the mean only). Counts above the number of columns
         of X are refused when the sweep starts.
-    order : sequence of int or str, optional
-        The order in which predictors enter: column positions, or column names when X is a
-        DataFrame. Default: the column order of X.
+    order : None, sequence of int or str, {"correlation", "f-test"} or callable, optional
+        The order in which predictors enter.
+
+        - None: the column order of X.
+        - A sequence: column positions, or column names when X is a DataFrame.
+        - ``"correlation"``: ranked by absolute Pearson correlation with y.
+        - ``"f-test"``: forward selection by the partial F statistic (F-to-enter): each step adds
+          the predictor that most reduces the residual sum of squares of least squares on the
+          predictors already in (with an intercept). Its first step is the univariate F test,
+          which ranks exactly like ``"correlation"``.
+        - A callable ``order(X_train, y_train) -> positions``: column positions, best first, at
+          least ``max(counts)`` of them (e.g. ``np.argsort(-scores)``). It receives float arrays
+          and must not modify them.
+
+        Ranked orders are recomputed on every training set (also in the fit on all the data), so
+        the ladder runs on the generic engine; ``result.inclusion`` reports how often each
+        predictor was among the first k. The ranking ignores ``sample_weight``.
     estimator : scikit-learn regressor, optional
         The model fitted on the chosen columns. Default: ordinary least squares with an intercept
-        (``LinearRegression()``), which the exact engine serves.
+        (``LinearRegression()``), which the exact engine serves for a fixed order.
 
     Examples
     --------
     >>> import complexity as cx
     >>> cx.FeatureLadder(counts=[1, 2, 3]).capacities
     (1, 2, 3)
+    >>> cx.FeatureLadder(counts=[1, 2], order="correlation").linear_least_squares
+    False
     """
 
     capacity_name = "n_features"
@@ -255,26 +391,50 @@ class FeatureLadder(Ladder):
     def __init__(
         self,
         counts: Iterable[int] = range(1, 21),
-        order: Sequence[int] | Sequence[str] | None = None,
+        order: Sequence[int] | Sequence[str] | str | Callable[..., Any] | None = None,
         estimator: Any = None,
     ) -> None:
         self.counts = _check_int_ladder("counts", counts, 0)
-        if order is not None and (isinstance(order, (str, bytes)) or not isinstance(order, Iterable)):
+        if isinstance(order, str):
+            check_option("order", order, RANKINGS)
+        elif callable(order) or order is None:
+            pass
+        elif isinstance(order, bytes) or not isinstance(order, Iterable):
             raise TypeError(
-                f"order must be None or a list of column positions or names; got {_short_repr(order)}."
+                "order must be None, a list of column positions or names, 'correlation', 'f-test' "
+                f"or a callable (X_train, y_train) -> positions; got {_short_repr(order)}."
             )
-        self.order = None if order is None else list(order)
+        else:
+            order = list(order)
+        self.order = order
         if estimator is not None and not hasattr(estimator, "fit"):
-            raise TypeError(f"estimator must be a scikit-learn regressor; got {_short_repr(estimator)}.")
+            raise TypeError(
+                f"estimator must be a scikit-learn regressor; got {_short_repr(estimator)}."
+            )
         self.estimator = estimator
-        self.linear_least_squares = estimator is None
+        # The exact engine serves least squares on one fixed column order; a ranked order changes
+        # with every training set, which the generic engine handles by ranking inside each fit.
+        self.linear_least_squares = estimator is None and not self.ranked
+
+    @property
+    def ranked(self) -> bool:
+        """True when the order is recomputed inside every training set."""
+        return isinstance(self.order, str) or callable(self.order)
 
     @property
     def capacities(self) -> tuple[int, ...]:
         return self.counts
 
     def column_order(self, n_columns: int, feature_names: tuple[str, ...] | None) -> list[int]:
-        """Resolve ``order`` into column positions for data with ``n_columns`` columns."""
+        """Resolve a fixed ``order`` into column positions for data with ``n_columns`` columns.
+
+        A ranked order has no fixed column order; it raises ``ValueError``.
+        """
+        if self.ranked:
+            raise ValueError(
+                f"order={self.order!r} is ranked inside every training set; it has no fixed "
+                "column order."
+            )
         if self.order is None:
             return list(range(n_columns))
         positions = []
@@ -282,48 +442,116 @@ class FeatureLadder(Ladder):
             if isinstance(item, str):
                 if feature_names is None or item not in feature_names:
                     known = list(feature_names) if feature_names else "none (X is not a DataFrame)"
-                    raise ValueError(f"order names column {item!r}, which X does not have; columns: {known}.")
+                    raise ValueError(
+                        f"order names column {item!r}, which X does not have; columns: {known}."
+                    )
                 positions.append(feature_names.index(item))
             elif isinstance(item, numbers.Integral) and not isinstance(item, bool):
                 if not 0 <= item < n_columns:
-                    raise ValueError(f"order contains column position {item}; X has columns 0..{n_columns - 1}.")
+                    raise ValueError(
+                        f"order contains column position {item}; X has columns 0..{n_columns - 1}."
+                    )
                 positions.append(int(item))
             else:
-                raise TypeError(f"order must hold column positions or names; got {_short_repr(item)}.")
+                raise TypeError(
+                    f"order must hold column positions or names; got {_short_repr(item)}."
+                )
         if len(set(positions)) != len(positions):
             raise ValueError(f"order names a column more than once: {self.order!r}.")
         return positions
 
-    def check_data(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None) -> list[str]:
-        order = self.column_order(X.shape[1], feature_names)
+    def check_data(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None
+    ) -> list[str]:
+        available = X.shape[1] if self.ranked else len(self.column_order(X.shape[1], feature_names))
         top = max(self.counts)
-        if top > len(order):
+        if top > available:
             raise ValueError(
-                f"counts reach {top}, but only {len(order)} predictor(s) are available; "
-                f"use counts up to {len(order)}."
+                f"counts reach {top}, but only {available} predictor(s) are available; "
+                f"use counts up to {available}."
             )
-        if self.linear_least_squares and top + 1 > X.shape[0]:
+        if self.estimator is None and top + 1 > X.shape[0]:
             raise ValueError(
-                f"counts reach {top}: least squares with an intercept needs at least {top + 1} rows, "
-                f"X has {X.shape[0]}."
+                f"counts reach {top}: least squares with an intercept needs at least {top + 1} "
+                f"rows, X has {X.shape[0]}."
             )
         return []
 
-    def _model(self, k: int, order: list[int]) -> Any:
+    def _model(self, k: int, order: Any) -> Any:
         if k == 0:
             return DummyRegressor(strategy="mean")
         final = LinearRegression() if self.estimator is None else clone(self.estimator)
         return Pipeline([("columns", _FirstColumns(k=k, order=order)), ("model", final)])
 
-    def build(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None) -> list[Any]:
-        order = self.column_order(X.shape[1], feature_names)
+    def build(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> list[Any]:
+        order = self.order if self.ranked else self.column_order(X.shape[1], feature_names)
         return [self._model(k, order) for k in self.counts]
 
+    def training_problem(self, index: int, X_train: NDArray[np.float64]) -> str | None:
+        """Least squares on k predictors and an intercept needs k + 1 distinct training rows."""
+        k = self.counts[index]
+        if self.estimator is None and k > 0:
+            have = _distinct_rows(X_train)
+            if have < k + 1:
+                return (
+                    f"training set has {have} distinct row(s); least squares on {k} predictor(s) "
+                    f"and an intercept needs {k + 1}"
+                )
+        return None
+
+    def inclusion(
+        self, problem: Any, resamples: Sequence[Any], feature_names: tuple[str, ...] | None = None
+    ) -> pd.DataFrame:
+        """Share of resamples in which each predictor was among the first k, for every count k.
+
+        For a ranked order the ranking is recomputed on each resample's training rows (the same
+        computation the models do inside their fit); a fixed order gives 1 for its first k
+        predictors and 0 elsewhere.
+
+        Parameters
+        ----------
+        problem : complexity.engine.Problem
+            Supplies each resample's training set.
+        resamples : sequence of complexity.plans.Resample
+        feature_names : tuple of str, optional
+            Column labels; default ``x0, x1, ...``.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Indexed by count (``n_features``), one column per predictor, values in [0, 1].
+        """
+        p = problem.X_eval.shape[1]
+        labels = list(feature_names) if feature_names else [f"x{j}" for j in range(p)]
+        top = max(self.counts)
+        hits = np.zeros((len(self.counts), p))
+        if self.ranked:
+            for r in resamples:
+                X_tr, y_tr, _ = problem.training_set(r)
+                rank = np.zeros(p, dtype=np.intp) + p  # position in the ranking; p = not ranked
+                order = _ranking(self.order, X_tr, y_tr, top)
+                rank[order] = np.arange(order.size)
+                hits += rank[None, :] < np.array(self.counts)[:, None]
+            shares = hits / max(len(resamples), 1)
+        else:
+            order = self.column_order(p, feature_names)
+            for i, k in enumerate(self.counts):
+                hits[i, order[:k]] = 1.0
+            shares = hits
+        return pd.DataFrame(
+            shares, index=pd.Index(list(self.counts), name=self.capacity_name), columns=labels
+        )
+
     def describe(self) -> dict[str, Any]:
+        order: Any = self.order
+        if callable(order):
+            order = f"callable {_callable_name(order)}"
         return {
             "kind": "features",
             "counts": list(self.counts),
-            "order": self.order,
+            "order": order,
             "estimator": None if self.estimator is None else repr(self.estimator),
         }
 
@@ -413,6 +641,22 @@ class ParamLadder(Ladder):
             "values": list(self.values),
             "simpler": self.simpler,
         }
+
+
+def capacity_index(values: Iterable[Any], name: str | None = None) -> pd.Index:
+    """A pandas Index of capacity values that keeps them as given.
+
+    Numbers stay numbers; a ladder holding ``None`` (e.g. ``max_depth=None``) or mixed kinds
+    gets an object index, so ``None`` is not turned into NaN.
+
+    Examples
+    --------
+    >>> capacity_index([1, 3, None], "max_depth").tolist()
+    [1, 3, None]
+    """
+    values = list(values)
+    plain = all(isinstance(v, numbers.Real) and not isinstance(v, bool) for v in values)
+    return pd.Index(values, name=name, dtype=None if plain else object)
 
 
 def capacity_label(ladder: Ladder) -> str:

@@ -13,7 +13,8 @@ by any tool. Schema (``"format": "complexity.sweep-result"``, ``"version": 1``):
      "noise":     {"value", "method", "df", "detail"},
      "failures":  [{"capacity", "count", "first_message"}, ...],
      "notes":     [str, ...],
-     "metadata":  {...}}
+     "metadata":  {...},
+     "inclusion": {"columns": [...], "data": [[share, ...] per capacity]}   (feature ladders only)}
 """
 
 from __future__ import annotations
@@ -28,6 +29,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .ladders import capacity_index
 from .noise import NoiseEstimate
 
 __all__ = ["SweepResult", "load_result"]
@@ -75,6 +77,10 @@ class SweepResult:
     predictions : ndarray or None
         With ``keep_predictions=True``: predictions of shape (n_resamples, n_points, n_capacities),
         NaN where a point was not scored by a resample.
+    inclusion : pandas.DataFrame or None
+        Feature ladders only: indexed by count, one column per predictor (named after the
+        DataFrame's columns, else ``x0, x1, ...``), the share of resamples whose training set put
+        that predictor among the first k (for a ranked order, ranked inside each training set).
 
     Examples
     --------
@@ -97,6 +103,7 @@ class SweepResult:
     metadata: dict[str, Any] = field(default_factory=dict)
     predictions: np.ndarray | None = field(default=None, repr=False)
     coefficient_tables: dict[Any, pd.DataFrame] | None = field(default=None, repr=False)
+    inclusion: pd.DataFrame | None = field(default=None, repr=False)
 
     def coefficients(self, capacity: Any) -> pd.DataFrame:
         """Coefficients of the model fitted on all data at ``capacity``, in the user's units.
@@ -193,11 +200,43 @@ class SweepResult:
             f"<p><small>{html.escape(CAUTION)}</small></p></div>"
         )
 
+    def plot(self, view: str = "errors", **options: Any) -> Any:
+        """Draw one view of the result; see :func:`complexity.plot.plot` for views and options.
+
+        Returns a :class:`matplotlib.figure.Figure` (needs ``pip install "complexity[plot]"``).
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 4)), X, y, plan=cx.Bootstrap(10), random_state=0)
+        >>> fig = r.plot("errors", y_units="kPa")
+        """
+        from .plot import plot
+
+        return plot(self, view, **options)
+
+    def report(self, path: str | Path, **options: Any) -> Path:
+        """Write a self-contained HTML report; see :func:`complexity.report.write_report`.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 4)), X, y, plan=cx.Bootstrap(10), random_state=0)
+        >>> r.report(pathlib.Path(tempfile.mkdtemp()) / "r.html", X=X, y=y).exists()
+        True
+        """
+        from .report import write_report
+
+        return write_report(self, path, **options)
+
     # ------------------------------------------------------------------ persistence
     def to_dict(self) -> dict[str, Any]:
         """The JSON document described in the module docstring (a plain dict)."""
         caps = [_plain(c) for c in self.curves.index]
-        return {
+        doc = {
             "format": FORMAT,
             "version": VERSION,
             "capacity_name": self.capacity_name,
@@ -221,6 +260,12 @@ class SweepResult:
             "notes": list(self.notes),
             "metadata": _plain_tree(self.metadata),
         }
+        if self.inclusion is not None:
+            doc["inclusion"] = {
+                "columns": [str(c) for c in self.inclusion.columns],
+                "data": [[float(v) for v in row] for row in self.inclusion.to_numpy()],
+            }
+        return doc
 
     def save(self, path: str | Path) -> Path:
         """Write the result as a JSON document; :func:`load_result` reads it back exactly.
@@ -286,7 +331,7 @@ def load_result(path: str | Path) -> SweepResult:
         raise ValueError(f"{path} is not a saved sweep result (format {doc.get('format')!r}).")
     if doc.get("version") != VERSION:
         raise ValueError(f"{path} has result version {doc.get('version')!r}; this library reads {VERSION}.")
-    index = pd.Index(doc["capacities"], name=doc["capacity_name"])
+    index = capacity_index(doc["capacities"], doc["capacity_name"])
     data = {c: _decode_column(doc["curves"]["data"][c]) for c in doc["curves"]["columns"]}
     curves = pd.DataFrame(data, index=index, columns=doc["curves"]["columns"])
     for c in curves.columns:
@@ -297,12 +342,19 @@ def load_result(path: str | Path) -> SweepResult:
     rules = pd.DataFrame(doc["rules"], columns=["rule", "capacity", "reason"]).set_index("rule")
     stability = pd.Series(
         np.array(_decode_column(doc["stability"]), dtype=np.float64),
-        index=pd.Index(doc["capacities"]),
+        index=capacity_index(doc["capacities"]),
         name="share_chosen",
     )
     failures = _failures_frame(
         [(f["capacity"], f["count"], f["first_message"]) for f in doc["failures"]], doc["capacity_name"]
     )
+    inclusion = None
+    if doc.get("inclusion") is not None:
+        inclusion = pd.DataFrame(
+            np.array(doc["inclusion"]["data"], dtype=np.float64).reshape(len(index), -1),
+            index=index.copy(),
+            columns=doc["inclusion"]["columns"],
+        )
     return SweepResult(
         curves=curves,
         recommended=doc["recommended"],
@@ -313,13 +365,14 @@ def load_result(path: str | Path) -> SweepResult:
         failures=failures,
         notes=list(doc["notes"]),
         metadata=doc["metadata"],
+        inclusion=inclusion,
     )
 
 
 def _failures_frame(rows: list[tuple[Any, int, str]], capacity_name: str) -> pd.DataFrame:
     frame = pd.DataFrame(
         {"count": [int(r[1]) for r in rows], "first_message": [r[2] for r in rows]},
-        index=pd.Index([r[0] for r in rows], name=capacity_name),
+        index=capacity_index([r[0] for r in rows], capacity_name),
     )
     frame["count"] = frame["count"].astype(np.int64)
     return frame

@@ -22,6 +22,8 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
+from .ladders import capacity_index
+
 __all__ = ["RULES", "CRITERIA", "choose", "choose_min", "choose_one_se", "rule_table", "stability"]
 
 RESAMPLING_RULES = ("min", "one-se")
@@ -169,4 +171,4 @@ def stability(
         wins[pos] += 1
         used += 1
     share = wins / used if used else np.full(len(capacities), np.nan)
-    return pd.Series(share, index=pd.Index(list(capacities)), name="share_chosen")
+    return pd.Series(share, index=capacity_index(capacities), name="share_chosen")
