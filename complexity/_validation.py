@@ -30,7 +30,9 @@ def check_int(name: str, value: Any, *, minimum: int | None = None) -> int:
     given as a float is usually a mistake worth pointing out.
     """
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-        raise TypeError(f"{name} must be an int; got {_short_repr(value)} of type {type(value).__name__}.")
+        raise TypeError(
+            f"{name} must be an int; got {_short_repr(value)} of type {type(value).__name__}."
+        )
     value = int(value)
     if minimum is not None and value < minimum:
         raise ValueError(f"{name} must be an int >= {minimum}; got {value}.")
@@ -73,7 +75,9 @@ def as_seed_sequence(random_state: Any) -> np.random.SeedSequence:
     if isinstance(random_state, np.random.SeedSequence):
         return random_state
     if isinstance(random_state, bool):
-        raise TypeError("random_state must be None, an int, a SeedSequence or a Generator; got a bool.")
+        raise TypeError(
+            "random_state must be None, an int, a SeedSequence or a Generator; got a bool."
+        )
     if isinstance(random_state, numbers.Integral):
         if random_state < 0:
             raise ValueError(f"random_state must be a non-negative int; got {random_state}.")
@@ -108,8 +112,11 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
     """Validate predictors: numeric, finite, 1-D or 2-D, at least one row. Returns a float copy."""
     names = _feature_names(X)
     if isinstance(X, pd.DataFrame):
-        bad = [str(c) for c, dt in X.dtypes.items() if not pd.api.types.is_numeric_dtype(dt)
-               or pd.api.types.is_bool_dtype(dt)]
+        bad = [
+            str(c)
+            for c, dt in X.dtypes.items()
+            if not pd.api.types.is_numeric_dtype(dt) or pd.api.types.is_bool_dtype(dt)
+        ]
         if bad:
             raise TypeError(
                 f"{name} has non-numeric columns {bad}; every predictor must be numeric "
@@ -122,7 +129,9 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
         raw = np.asarray(X)
         if raw.dtype.kind not in "iuf":
             if raw.dtype.kind == "b":
-                raise TypeError(f"{name} must be numeric; got a boolean array. Convert it with .astype(float).")
+                raise TypeError(
+                    f"{name} must be numeric; got a boolean array. Convert it with .astype(float)."
+                )
             try:
                 arr = np.array(raw, dtype=np.float64, copy=True)
             except (TypeError, ValueError):
@@ -154,7 +163,9 @@ def check_y(y: ArrayLike, *, name: str = "y") -> NDArray[np.float64]:
     """Validate the response: numeric, finite, 1-D. Returns a float copy."""
     if isinstance(y, pd.DataFrame):
         if y.shape[1] != 1:
-            raise ValueError(f"{name} must be one column; got a DataFrame with {y.shape[1]} columns.")
+            raise ValueError(
+                f"{name} must be one column; got a DataFrame with {y.shape[1]} columns."
+            )
         y = y.iloc[:, 0]
     if isinstance(y, (str, bytes)) or y is None:
         raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(y)}.")

@@ -49,7 +49,9 @@ def pressure_sensor_drift(temperature_c: ArrayLike) -> NDArray[np.float64]:
     return 0.15 + 0.35 * t + 0.6 / (1.0 + np.exp(-6.0 * (t - 0.3))) - 0.12 * t**2
 
 
-def pressure_sensor(*, as_frame: bool = True) -> tuple[pd.DataFrame, pd.Series] | tuple[NDArray, NDArray]:
+def pressure_sensor(
+    *, as_frame: bool = True
+) -> tuple[pd.DataFrame, pd.Series] | tuple[NDArray, NDArray]:
     """Synthetic zero-offset readings of a pressure sensor against chamber temperature.
 
     51 readings: 17 set points from -20 °C to 60 °C in steps of 5 °C, three readings each, with

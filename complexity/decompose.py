@@ -151,7 +151,7 @@ def curves_table(
     simulated = plan_kind == "simulation"
     notes: list[str] = []
     rows = []
-    for c, cap in enumerate(capacities):
+    for c in range(len(capacities)):
         decomposable = int((acc.count[:, c] >= 2).sum()) >= 2
         pp = _per_point(acc, c, 2 if decomposable else 1)
         n_pts = pp["e"].size
@@ -159,7 +159,9 @@ def curves_table(
         if train_mse is not None:
             row["train_mse"] = float(train_mse[c])
         else:
-            row["train_mse"] = float(acc.train_sum[c] / acc.train_n[c]) if acc.train_n[c] else np.nan
+            row["train_mse"] = (
+                float(acc.train_sum[c] / acc.train_n[c]) if acc.train_n[c] else np.nan
+            )
         err = float(np.mean(pp["e"])) if n_pts else np.nan
         if decomposable:
             var = float(np.mean(pp["s2"]))
@@ -183,7 +185,12 @@ def curves_table(
             row["bias_sq_plus_noise"] = nb2
         row["variance"] = var
         row["noise"] = noise
-        if plan_kind == "bootstrap" and train_mse is not None and y is not None and fitted is not None:
+        if (
+            plan_kind == "bootstrap"
+            and train_mse is not None
+            and y is not None
+            and fitted is not None
+        ):
             if np.isfinite(train_mse[c]) and n_pts:
                 row["test_mse_632"], row["test_mse_632plus"] = bootstrap_632(
                     float(train_mse[c]), err, no_information_error(y, fitted[:, c])

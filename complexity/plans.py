@@ -184,7 +184,9 @@ class CrossValidation(Plan):
         out = []
         for r in range(self.n_repeats):
             seed = child_seed(root, STREAM_RESAMPLE, r)
-            state = int(np.random.default_rng(seed).integers(0, 2**31 - 1)) if self.shuffle else None
+            state = (
+                int(np.random.default_rng(seed).integers(0, 2**31 - 1)) if self.shuffle else None
+            )
             folds = KFold(self.n_splits, shuffle=self.shuffle, random_state=state)
             for k, (train, test) in enumerate(folds.split(np.empty((n, 1)))):
                 index = r * self.n_splits + k
@@ -225,7 +227,9 @@ class _SplitterPlan(Plan):
             if seen[test].any():  # a row scored again: a new repetition has started
                 replicate, seen = replicate + 1, np.zeros(n, dtype=bool)
             seen[test] = True
-            out.append(Resample(index, replicate, train, test, child_seed(root, STREAM_RESAMPLE, index)))
+            out.append(
+                Resample(index, replicate, train, test, child_seed(root, STREAM_RESAMPLE, index))
+            )
         if not out:
             raise ValueError(f"plan {self.splitter!r} produced no splits.")
         return out
@@ -280,7 +284,9 @@ class Simulation(Plan):
         x_eval: Any = None,
     ) -> None:
         if not callable(truth):
-            raise TypeError(f"truth must be a callable truth(X) -> values; got {_short_repr(truth)}.")
+            raise TypeError(
+                f"truth must be a callable truth(X) -> values; got {_short_repr(truth)}."
+            )
         self.truth = truth
         self.noise_sd = check_float("noise_sd", noise_sd, minimum=0.0)
         self.n_resamples = check_int("n_resamples", n_resamples, minimum=2)
@@ -311,7 +317,9 @@ class Simulation(Plan):
         try:
             f = np.asarray(self.truth(X.copy()), dtype=np.float64)
         except Exception as exc:
-            raise ValueError(f"truth raised {type(exc).__name__}: {exc} (called on {where}).") from exc
+            raise ValueError(
+                f"truth raised {type(exc).__name__}: {exc} (called on {where})."
+            ) from exc
         if f.ndim == 2 and f.shape[1] == 1:
             f = f[:, 0]
         if f.shape != (X.shape[0],):

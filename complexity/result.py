@@ -146,8 +146,11 @@ class SweepResult:
         True
         """
         name = self.capacity_name
-        shown = [c for c in ("train_mse", "test_mse", "test_mse_se", "bias_sq", "variance", "noise")
-                 if c in self.curves]
+        shown = [
+            c
+            for c in ("train_mse", "test_mse", "test_mse_se", "bias_sq", "variance", "noise")
+            if c in self.curves
+        ]
         extra = [c for c in ("loocv", "aicc", "bic") if c in self.curves]
         table = self.curves[shown + extra].copy()
         table["chosen"] = self.stability.reindex(self.curves.index).to_numpy()
@@ -254,7 +257,11 @@ class SweepResult:
             "stability": [_plain(v) for v in self.stability.tolist()],
             "noise": self.noise.to_dict(),
             "failures": [
-                {"capacity": _plain(cap), "count": int(row["count"]), "first_message": row["first_message"]}
+                {
+                    "capacity": _plain(cap),
+                    "count": int(row["count"]),
+                    "first_message": row["first_message"],
+                }
                 for cap, row in self.failures.iterrows()
             ],
             "notes": list(self.notes),
@@ -330,7 +337,9 @@ def load_result(path: str | Path) -> SweepResult:
     if doc.get("format") != FORMAT:
         raise ValueError(f"{path} is not a saved sweep result (format {doc.get('format')!r}).")
     if doc.get("version") != VERSION:
-        raise ValueError(f"{path} has result version {doc.get('version')!r}; this library reads {VERSION}.")
+        raise ValueError(
+            f"{path} has result version {doc.get('version')!r}; this library reads {VERSION}."
+        )
     index = capacity_index(doc["capacities"], doc["capacity_name"])
     data = {c: _decode_column(doc["curves"]["data"][c]) for c in doc["curves"]["columns"]}
     curves = pd.DataFrame(data, index=index, columns=doc["curves"]["columns"])
@@ -346,7 +355,8 @@ def load_result(path: str | Path) -> SweepResult:
         name="share_chosen",
     )
     failures = _failures_frame(
-        [(f["capacity"], f["count"], f["first_message"]) for f in doc["failures"]], doc["capacity_name"]
+        [(f["capacity"], f["count"], f["first_message"]) for f in doc["failures"]],
+        doc["capacity_name"],
     )
     inclusion = None
     if doc.get("inclusion") is not None:

@@ -24,7 +24,7 @@ from numpy.typing import ArrayLike
 
 from .ladders import capacity_index
 
-__all__ = ["RULES", "CRITERIA", "choose", "choose_min", "choose_one_se", "rule_table", "stability"]
+__all__ = ["CRITERIA", "RULES", "choose", "choose_min", "choose_one_se", "rule_table", "stability"]
 
 RESAMPLING_RULES = ("min", "one-se")
 CRITERIA = ("loocv", "gcv", "aic", "aicc", "bic", "cp")
@@ -133,7 +133,9 @@ def rule_table(curves: pd.DataFrame) -> pd.DataFrame:
             pos = choose(rule, curves)
         except ValueError:
             continue
-        rows.append({"rule": rule, "capacity": curves.index[pos], "reason": _reason(rule, curves, pos)})
+        rows.append(
+            {"rule": rule, "capacity": curves.index[pos], "reason": _reason(rule, curves, pos)}
+        )
     return pd.DataFrame(rows, columns=["rule", "capacity", "reason"]).set_index("rule")
 
 

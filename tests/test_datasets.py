@@ -13,6 +13,7 @@ def test_demo_data_is_deterministic_and_shaped():
     assert X1.shape == (51, 1) and list(X1.columns) == ["temperature_c"]
     Xa, ya = cx.datasets.pressure_sensor(as_frame=False)
     np.testing.assert_array_equal(Xa[:, 0], X1["temperature_c"].to_numpy())
+    np.testing.assert_array_equal(ya, y1.to_numpy())
     # 17 set points, three readings each
     values, counts = np.unique(Xa[:, 0], return_counts=True)
     assert values.size == 17 and np.all(counts == 3)

@@ -21,8 +21,14 @@ def test_polynomial_degrees_sorted_and_models_fit_exactly():
 
 
 def test_param_ladder_order_by_simpler_end():
-    assert cx.ParamLadder(KNeighborsRegressor(), "n_neighbors", [1, 10, 5], simpler="high").capacities == (10, 5, 1)
-    assert cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [None, 2, 8]).capacities == (2, 8, None)
+    assert cx.ParamLadder(
+        KNeighborsRegressor(), "n_neighbors", [1, 10, 5], simpler="high"
+    ).capacities == (10, 5, 1)
+    assert cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [None, 2, 8]).capacities == (
+        2,
+        8,
+        None,
+    )
     assert cx.ParamLadder(Ridge(), "alpha", [1.0, 0.01], simpler="first").capacities == (1.0, 0.01)
     models = cx.ParamLadder(Ridge(), "alpha", [0.1, 10.0], simpler="high").build(np.zeros((3, 1)))
     assert [m.alpha for m in models] == [10.0, 0.1]
@@ -31,13 +37,28 @@ def test_param_ladder_order_by_simpler_end():
 @pytest.mark.parametrize(
     ("make", "match"),
     [
-        (lambda: cx.ParamLadder(Ridge(), "depth", [1, 2]), r"param='depth' is not a parameter of Ridge"),
-        (lambda: cx.ParamLadder("tree", "max_depth", [1]), r"estimator must be a scikit-learn estimator"),
-        (lambda: cx.ParamLadder(Ridge(), "alpha", [1.0, 1.0]), r"values contains 1.0 more than once"),
+        (
+            lambda: cx.ParamLadder(Ridge(), "depth", [1, 2]),
+            r"param='depth' is not a parameter of Ridge",
+        ),
+        (
+            lambda: cx.ParamLadder("tree", "max_depth", [1]),
+            r"estimator must be a scikit-learn estimator",
+        ),
+        (
+            lambda: cx.ParamLadder(Ridge(), "alpha", [1.0, 1.0]),
+            r"values contains 1.0 more than once",
+        ),
         (lambda: cx.ParamLadder(Ridge(), "alpha", [1.0, "a"]), r"cannot be ordered"),
-        (lambda: cx.ParamLadder(Ridge(), "alpha", [1.0], simpler="left"), r"simpler must be one of"),
+        (
+            lambda: cx.ParamLadder(Ridge(), "alpha", [1.0], simpler="left"),
+            r"simpler must be one of",
+        ),
         (lambda: cx.FeatureLadder([0, -2]), r"counts must contain whole numbers >= 0"),
-        (lambda: cx.FeatureLadder([1], order=5), r"order must be None, a list of column positions or names.*got 5"),
+        (
+            lambda: cx.FeatureLadder([1], order=5),
+            r"order must be None, a list of column positions or names.*got 5",
+        ),
         (lambda: cx.PolynomialLadder([1], domain=(2.0, 1.0)), r"domain must be a finite interval"),
     ],
 )

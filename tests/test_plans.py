@@ -50,8 +50,13 @@ def test_same_seed_same_plan_and_split_matches_resamples():
 
 
 def test_child_seed_is_pure():
-    assert child_seed(ROOT, 0, 3).generate_state(2).tolist() == child_seed(ROOT, 0, 3).generate_state(2).tolist()
-    assert child_seed(ROOT, 0, 3).generate_state(1)[0] != child_seed(ROOT, 0, 4).generate_state(1)[0]
+    assert (
+        child_seed(ROOT, 0, 3).generate_state(2).tolist()
+        == child_seed(ROOT, 0, 3).generate_state(2).tolist()
+    )
+    assert (
+        child_seed(ROOT, 0, 3).generate_state(1)[0] != child_seed(ROOT, 0, 4).generate_state(1)[0]
+    )
 
 
 def test_splitter_adapter_and_repetitions():
@@ -113,11 +118,15 @@ def test_simulation_draws_fixed_and_sampled_designs():
     )
     Xs, _ = sampled.draw(child_seed(ROOT, 0, 0))
     assert Xs.shape == (6, 1)
-    bad = cx.Simulation(lambda X: X[:, 0], 0.1, lambda rng, n: rng.uniform(0, 1, n + 1), n_train=6, x_eval=design)
+    bad = cx.Simulation(
+        lambda X: X[:, 0], 0.1, lambda rng, n: rng.uniform(0, 1, n + 1), n_train=6, x_eval=design
+    )
     with pytest.raises(ValueError, match="returned 7 rows"):
         bad.draw(child_seed(ROOT, 0, 0))
 
 
 def test_reprs():
     assert repr(cx.Bootstrap(7)) == "Bootstrap(n_resamples=7)"
-    assert repr(cx.CrossValidation(3, 2)) == "CrossValidation(n_splits=3, n_repeats=2, shuffle=True)"
+    assert (
+        repr(cx.CrossValidation(3, 2)) == "CrossValidation(n_splits=3, n_repeats=2, shuffle=True)"
+    )

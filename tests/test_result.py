@@ -18,8 +18,11 @@ pytestmark = pytest.mark.filterwarnings("ignore::complexity.CapacityWarning")
 def result():
     data = load_diabetes()  # open data set shipped with scikit-learn
     return cx.sweep(
-        cx.PolynomialLadder(range(0, 4)), data.data[:120, [2]], data.target[:120],
-        plan=cx.Bootstrap(15), random_state=4,
+        cx.PolynomialLadder(range(0, 4)),
+        data.data[:120, [2]],
+        data.target[:120],
+        plan=cx.Bootstrap(15),
+        random_state=4,
     )
 
 
@@ -49,7 +52,9 @@ def test_save_load_exact_round_trip(result, tmp_path):
 def test_round_trip_with_failures_none_capacities_and_nan(tmp_path):
     data = load_diabetes()
     ladder = cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [1, 3, None])
-    r = cx.sweep(ladder, data.data[:60, :3], data.target[:60], plan=cx.CrossValidation(3), random_state=0)
+    r = cx.sweep(
+        ladder, data.data[:60, :3], data.target[:60], plan=cx.CrossValidation(3), random_state=0
+    )
     assert r.curves["variance"].isna().all()  # one prediction per point: documented NaN with a note
     back = cx.load_result(r.save(tmp_path / "p.json"))
     _assert_same(r, back)

@@ -48,7 +48,9 @@ def test_simulation_matches_linear_smoother_closed_form():
     sigma = 0.3
     plan = cx.Simulation(truth, sigma, design, n_resamples=1000, x_eval=x_eval)
     degrees = range(0, 6)
-    result = cx.sweep(cx.PolynomialLadder(degrees), plan=plan, random_state=7, keep_predictions=True)
+    result = cx.sweep(
+        cx.PolynomialLadder(degrees), plan=plan, random_state=7, keep_predictions=True
+    )
     f_design = truth(design[:, None])
     f_eval = truth(x_eval[:, None])
     for c, d in enumerate(degrees):
@@ -172,7 +174,13 @@ def test_none_seed_is_recorded_and_repeatable():
     X, y = _diabetes_bmi()
     a = cx.sweep(cx.PolynomialLadder([0, 1]), X, y, plan=cx.Bootstrap(5))
     entropy = a.metadata["seed_entropy"]
-    b = cx.sweep(cx.PolynomialLadder([0, 1]), X, y, plan=cx.Bootstrap(5), random_state=np.random.SeedSequence(entropy))
+    b = cx.sweep(
+        cx.PolynomialLadder([0, 1]),
+        X,
+        y,
+        plan=cx.Bootstrap(5),
+        random_state=np.random.SeedSequence(entropy),
+    )
     pd.testing.assert_frame_equal(a.curves.drop(columns=[]), b.curves, check_exact=True)
 
 
@@ -205,9 +213,25 @@ def test_every_fit_failing_raises_with_first_message():
 
 def test_bootstrap_columns_and_keep_predictions():
     X, y = _diabetes_bmi()
-    r = cx.sweep(cx.PolynomialLadder([0, 1, 2]), X[:60], y[:60], plan=cx.Bootstrap(8), random_state=1, keep_predictions=True)
-    for col in ("train_mse", "test_mse", "test_mse_se", "bias_sq", "variance", "noise",
-                "bias_sq_plus_noise", "test_mse_632", "test_mse_632plus"):
+    r = cx.sweep(
+        cx.PolynomialLadder([0, 1, 2]),
+        X[:60],
+        y[:60],
+        plan=cx.Bootstrap(8),
+        random_state=1,
+        keep_predictions=True,
+    )
+    for col in (
+        "train_mse",
+        "test_mse",
+        "test_mse_se",
+        "bias_sq",
+        "variance",
+        "noise",
+        "bias_sq_plus_noise",
+        "test_mse_632",
+        "test_mse_632plus",
+    ):
         assert col in r.curves
     assert r.predictions.shape == (8, 60, 3)
     assert r.stability.sum() == pytest.approx(1.0)
@@ -230,14 +254,34 @@ Y_OK = np.sin(3 * X_OK)
         ({"y": Y_OK[:-1]}, ValueError, r"X has 20 rows, y has 19 values"),
         ({"X": np.empty(0), "y": np.empty(0)}, ValueError, r"X is empty"),
         ({"X": X_OK[:1], "y": Y_OK[:1]}, ValueError, r"at least 3 are needed"),
-        ({"X": np.repeat(X_OK[:4], 5)}, ValueError, r"degrees reach 5, which needs 6 coefficients, but X has only 4 distinct"),
+        (
+            {"X": np.repeat(X_OK[:4], 5)},
+            ValueError,
+            r"degrees reach 5, which needs 6 coefficients, but X has only 4 distinct",
+        ),
         ({"X": np.full(20, 3.0)}, ValueError, r"is constant"),
         ({"X": pd.DataFrame({"t": ["a"] * 20})}, TypeError, r"non-numeric columns \['t'\]"),
-        ({"X": np.array(["1"] * 19 + ["x"], dtype=object)}, TypeError, r"X must contain only numbers"),
-        ({"plan": cx.CrossValidation(30)}, ValueError, r"n_splits=30 is more than the number of rows"),
+        (
+            {"X": np.array(["1"] * 19 + ["x"], dtype=object)},
+            TypeError,
+            r"X must contain only numbers",
+        ),
+        (
+            {"plan": cx.CrossValidation(30)},
+            ValueError,
+            r"n_splits=30 is more than the number of rows",
+        ),
         ({"noise": -1.0}, ValueError, r"noise"),
         ({"rule": "smallest"}, ValueError, r"rule must be one of"),
-        ({"rule": "aic", "ladder": cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [1, 2]), "engine": "generic"}, ValueError, r"rule='aic' needs the closed-form criteria"),
+        (
+            {
+                "rule": "aic",
+                "ladder": cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [1, 2]),
+                "engine": "generic",
+            },
+            ValueError,
+            r"rule='aic' needs the closed-form criteria",
+        ),
         ({"ladder": "degree"}, TypeError, r"ladder must be"),
         ({"engine": "fast"}, ValueError, r"engine must be one of"),
         ({"progress": "yes"}, TypeError, r"progress must be True or False"),
@@ -245,7 +289,12 @@ Y_OK = np.sin(3 * X_OK)
     ],
 )
 def test_bad_input_messages(kwargs, error, match):
-    args = {"ladder": cx.PolynomialLadder(range(0, 6)), "X": X_OK, "y": Y_OK, "plan": cx.Bootstrap(3)}
+    args = {
+        "ladder": cx.PolynomialLadder(range(0, 6)),
+        "X": X_OK,
+        "y": Y_OK,
+        "plan": cx.Bootstrap(3),
+    }
     args.update(kwargs)
     ladder = args.pop("ladder")
     with pytest.raises(error, match=match):
@@ -273,7 +322,9 @@ def test_inputs_are_not_modified():
     frame = pd.DataFrame({"bmi": X[:, 0]})
     frame_before = frame.copy()
     cx.sweep(cx.PolynomialLadder([0, 1, 2]), X, y, plan=cx.Bootstrap(3), random_state=0)
-    cx.sweep(cx.PolynomialLadder([0, 1, 2]), frame, pd.Series(y), plan=cx.Bootstrap(3), random_state=0)
+    cx.sweep(
+        cx.PolynomialLadder([0, 1, 2]), frame, pd.Series(y), plan=cx.Bootstrap(3), random_state=0
+    )
     assert (X.tobytes(), y.tobytes()) == before
     pd.testing.assert_frame_equal(frame, frame_before)
 
@@ -282,6 +333,8 @@ def test_simulation_needs_no_data_and_describes_observed_data():
     plan = cx.Simulation(lambda X: X[:, 0] ** 2, 0.1, np.linspace(0, 1, 10), n_resamples=20)
     r = cx.sweep(cx.PolynomialLadder([0, 1, 2]), plan=plan, random_state=0)
     assert r.metadata["n_samples"] is None
-    r2 = cx.sweep(cx.PolynomialLadder([0, 1, 2]), np.arange(5.0), np.arange(5.0), plan=plan, random_state=0)
+    r2 = cx.sweep(
+        cx.PolynomialLadder([0, 1, 2]), np.arange(5.0), np.arange(5.0), plan=plan, random_state=0
+    )
     assert r2.metadata["n_samples"] == 5
     pd.testing.assert_frame_equal(r.curves, r2.curves, check_exact=True)

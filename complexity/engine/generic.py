@@ -29,7 +29,11 @@ def _seed_estimator(model: Any, seed: np.random.SeedSequence) -> Any:
     """
     est = clone(model)
     params = est.get_params(deep=True)
-    keys = sorted(k for k, v in params.items() if (k == "random_state" or k.endswith("__random_state")) and v is None)
+    keys = sorted(
+        k
+        for k, v in params.items()
+        if (k == "random_state" or k.endswith("__random_state")) and v is None
+    )
     if keys:
         draws = np.random.default_rng(seed).integers(0, 2**31 - 1, size=len(keys))
         est.set_params(**{k: int(d) for k, d in zip(keys, draws)})
@@ -154,7 +158,12 @@ def fit_full(problem: Problem) -> FullFit:
     for c, model in enumerate(problem.models):
         try:
             pred, _ = _fit_one(
-                model, child_seed(problem.root, STREAM_FULL_FIT, c), X, y, problem.sample_weight, X[:0]
+                model,
+                child_seed(problem.root, STREAM_FULL_FIT, c),
+                X,
+                y,
+                problem.sample_weight,
+                X[:0],
             )
         except Exception as exc:
             failures[c] = _message(exc)
