@@ -15,6 +15,18 @@ are noisy observations, so NB2 mixes noise and squared bias: resampling one data
 systematic error from noise, and only an outside noise estimate (replicates, differences,
 neighbours; :mod:`complexity.noise`) splits them. In a :class:`~complexity.Simulation` the target
 is the true function, so BIAS2 is measured directly and the noise variance is known.
+
+Standard errors (``test_mse_se``), by plan:
+
+- bootstrap: point level, ``s(e_i) / sqrt(n')`` over the n' scored points;
+- K-fold and other splitters: split level, ``s(CV_j) / sqrt(J)`` over the J split scores (ddof 1);
+- simulation: Monte-Carlo standard error across the simulated training sets.
+
+Both data-based forms ignore the positive correlations between overlapping training sets, so they
+are somewhat too small (Bengio & Grandvalet 2004: no unbiased estimator of the variance of K-fold
+CV exists); read the one-standard-error rule with that in mind. Points enter the bootstrap figures
+only when at least two resamples left them out (so their variance is defined); with 50 or more
+resamples that is essentially every point.
 """
 
 from __future__ import annotations
