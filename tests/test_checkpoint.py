@@ -347,3 +347,30 @@ def test_new_nested_folder_is_created(tmp_path, reference):
     result = run_sweep(tmp_path / "a" / "b")
     assert (tmp_path / "a" / "b" / "checkpoint.json").is_file()
     assert_identical(result, reference)
+
+
+def test_exact_engine_resumes_from_a_partial_folder(tmp_path):
+    # a folder holding only some resamples is what an interrupted run leaves behind; the exact
+    # engine batches resamples in chunks, so this checks a chunk refitted from a subset
+    def sweep(checkpoint=None):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", cx.CapacityWarning)
+            return cx.sweep(
+                cx.PolynomialLadder(range(0, 6)),
+                X,
+                Y,
+                plan=cx.Bootstrap(300),
+                random_state=4,
+                keep_predictions=True,
+                checkpoint=checkpoint,
+            )
+
+    ref = sweep()
+    assert ref.metadata["engine"] == "exact"
+    sweep(tmp_path)
+    for file in stored(tmp_path)[5:290:2]:  # holes inside and across the engine's chunks
+        file.unlink()
+    resumed = sweep(tmp_path)
+    assert len(stored(tmp_path)) == 300
+    assert_identical(resumed, ref)
+    np.testing.assert_array_equal(resumed.predictions, ref.predictions)
