@@ -92,6 +92,96 @@ def as_seed_sequence(random_state: Any) -> np.random.SeedSequence:
     )
 
 
+def check_n_jobs(n_jobs: Any) -> int | None:
+    """Return ``n_jobs`` if joblib accepts it (None or a non-zero int), else raise naming it."""
+    if n_jobs is None:
+        return None
+    if isinstance(n_jobs, bool) or not isinstance(n_jobs, numbers.Integral):
+        raise TypeError(
+            f"n_jobs must be None or an int (1, 2, ..., or -1 for every core); got {_short_repr(n_jobs)}."
+        )
+    if n_jobs == 0:
+        raise ValueError("n_jobs must be None or a non-zero int (-1 means every core); got 0.")
+    return int(n_jobs)
+
+
+def _raw_array(value: Any, name: str) -> np.ndarray:
+    """``np.asarray(value)``, refusing the kinds of input it would silently mangle."""
+    import scipy.sparse
+
+    if scipy.sparse.issparse(value):
+        raise TypeError(
+            f"{name} is a scipy sparse matrix; pass a dense array (e.g. {name}.toarray())."
+        )
+    if isinstance(value, np.ma.MaskedArray):
+        masked = int(np.ma.count_masked(value))
+        if masked:
+            raise ValueError(
+                f"{name} is a masked array with {masked} masked value(s); drop those rows or "
+                f"fill them ({name}.filled(...)) first."
+            )
+        value = np.ma.getdata(value)
+    try:
+        raw = np.asarray(value)
+    except (TypeError, ValueError):
+        raise ValueError(
+            f"{name} must be a rectangular array of numbers (every row the same length); "
+            f"got {_short_repr(value)}."
+        ) from None
+    if raw.dtype.kind == "c":
+        raise TypeError(
+            f"{name} must hold real numbers; got complex values (dtype {raw.dtype}). "
+            "Pass the real part or the modulus explicitly."
+        )
+    if raw.dtype.kind in "mM":
+        raise TypeError(
+            f"{name} holds dates or time spans (dtype {raw.dtype}); convert them to numbers in "
+            "units of your choice first (e.g. days since the first reading)."
+        )
+    return raw
+
+
+def check_sample_weight(sample_weight: Any, n: int) -> NDArray[np.float64] | None:
+    """Validate per-row weights: one finite, non-negative number per row, not all zero.
+
+    Returns a float copy (None when ``sample_weight`` is None).
+    """
+    if sample_weight is None:
+        return None
+    if isinstance(sample_weight, (str, bytes)):
+        raise TypeError(
+            f"sample_weight must be an array of numbers; got {_short_repr(sample_weight)}."
+        )
+    raw = _raw_array(sample_weight, "sample_weight")
+    if raw.dtype.kind == "b":
+        raise TypeError("sample_weight must be numeric; got a boolean array. Use .astype(float).")
+    try:
+        w = np.array(raw, dtype=np.float64, copy=True)
+    except (TypeError, ValueError):
+        raise TypeError(
+            f"sample_weight must contain only numbers; got dtype {raw.dtype} "
+            f"starting {_short_repr(raw.ravel()[:3].tolist())}."
+        ) from None
+    if w.shape != (n,):
+        raise ValueError(
+            f"sample_weight must hold one weight per row of X ({n}); got shape {w.shape}."
+        )
+    bad = ~np.isfinite(w)
+    if bad.any():
+        raise ValueError(
+            f"sample_weight contains NaN or infinite values at {int(bad.sum())} position(s) "
+            f"(first: {int(np.flatnonzero(bad)[0])})."
+        )
+    if np.any(w < 0):
+        first = int(np.flatnonzero(w < 0)[0])
+        raise ValueError(f"sample_weight must be >= 0; got {w[first]!r} at position {first}.")
+    if not np.any(w > 0):
+        raise ValueError(
+            "sample_weight is zero everywhere; at least one row needs a positive weight."
+        )
+    return w
+
+
 @dataclass(frozen=True)
 class CheckedData:
     """Validated copies of the user's data."""
@@ -115,7 +205,9 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
         bad = [
             str(c)
             for c, dt in X.dtypes.items()
-            if not pd.api.types.is_numeric_dtype(dt) or pd.api.types.is_bool_dtype(dt)
+            if not pd.api.types.is_numeric_dtype(dt)
+            or pd.api.types.is_bool_dtype(dt)
+            or pd.api.types.is_complex_dtype(dt)
         ]
         if bad:
             raise TypeError(
@@ -126,7 +218,7 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
     elif isinstance(X, (str, bytes)) or X is None:
         raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(X)}.")
     else:
-        raw = np.asarray(X)
+        raw = _raw_array(X, name)
         if raw.dtype.kind not in "iuf":
             if raw.dtype.kind == "b":
                 raise TypeError(
@@ -156,6 +248,14 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
             f"{name} contains NaN or infinite values in {int(bad_rows.sum())} row(s) (first: row {first}); "
             "remove or impute them before sweeping."
         )
+    with np.errstate(over="ignore"):
+        span = arr.max(axis=0) - arr.min(axis=0)
+    if not np.all(np.isfinite(span)):
+        j = int(np.flatnonzero(~np.isfinite(span))[0])
+        raise ValueError(
+            f"{name} column {j} ranges from {arr[:, j].min()!r} to {arr[:, j].max()!r}; that range "
+            f"overflows float64 arithmetic. Rescale {name} (e.g. change its units)."
+        )
     return arr, names
 
 
@@ -169,7 +269,7 @@ def check_y(y: ArrayLike, *, name: str = "y") -> NDArray[np.float64]:
         y = y.iloc[:, 0]
     if isinstance(y, (str, bytes)) or y is None:
         raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(y)}.")
-    raw = np.asarray(y)
+    raw = _raw_array(y, name)
     if raw.dtype.kind == "b":
         raise TypeError(f"{name} must be numeric; got a boolean array.")
     try:
@@ -190,6 +290,21 @@ def check_y(y: ArrayLike, *, name: str = "y") -> NDArray[np.float64]:
         raise ValueError(
             f"{name} contains NaN or infinite values at {int(bad.sum())} position(s) "
             f"(first: {int(np.flatnonzero(bad)[0])}); remove or impute them before sweeping."
+        )
+    scale = np.max(np.abs(arr))
+    with np.errstate(over="ignore"):  # sums of squared errors, and of their squares (for SEs)
+        worst = (2.0 * scale) ** 4 * np.float64(arr.size)
+    if not np.isfinite(worst):
+        raise ValueError(
+            f"{name} has values as large as {scale:.3g} in magnitude; error sums on that scale "
+            f"overflow float64. Rescale {name} (e.g. change its units) to magnitudes below 1e75."
+        )
+    spread = np.ptp(arr)
+    if 0 < spread < 1e-75:  # squares of errors this small underflow (fourth powers below ~1e-300)
+        raise ValueError(
+            f"{name} varies only over {spread:.3g}; error sums on that scale underflow float64 and "
+            f"would read as zero. Rescale {name} (e.g. change its units) so it varies over more "
+            "than 1e-75."
         )
     return arr
 

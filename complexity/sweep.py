@@ -16,7 +16,13 @@ from typing import Any
 import numpy as np
 
 from ._progress import FitCounter
-from ._validation import _short_repr, check_option, check_X_y
+from ._validation import (
+    _short_repr,
+    check_n_jobs,
+    check_option,
+    check_sample_weight,
+    check_X_y,
+)
 from .accumulate import PointAccumulator
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, replicate_curves
@@ -185,6 +191,7 @@ def sweep(
 
     plan = Bootstrap(200) if plan is None else as_plan(plan)
     check_option("rule", rule, RULES)
+    check_n_jobs(n_jobs)
     for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
         if not isinstance(flag, (bool, np.bool_)):
             raise TypeError(f"{name} must be True or False; got {_short_repr(flag)}.")
@@ -207,6 +214,7 @@ def sweep(
         data = check_X_y(X, y, groups=groups)
         Xd, yd, names = data.X, data.y, data.feature_names
         n_obs = Xd.shape[0]
+        check_sample_weight(sample_weight, n_obs)  # clear messages before any use of the weights
         notes += ladder.check_data(Xd, names)
         models = ladder.build(Xd, names)
         X_eval, target, design = Xd, yd, Xd

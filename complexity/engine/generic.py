@@ -22,18 +22,25 @@ from . import FullFit, Outcome, Problem
 __all__ = ["fit_full", "run"]
 
 
-def _seed_estimator(model: Any, seed: np.random.SeedSequence) -> Any:
-    """Clone ``model``; set every ``random_state`` left as None to an int drawn from ``seed``.
-
-    Keys are visited in sorted order so the assignment is deterministic.
-    """
-    est = clone(model)
-    params = est.get_params(deep=True)
-    keys = sorted(
+def _random_state_keys(model: Any) -> list[str]:
+    """The ``random_state`` parameters of ``model`` left as None, in sorted order."""
+    params = model.get_params(deep=True)
+    return sorted(
         k
         for k, v in params.items()
         if (k == "random_state" or k.endswith("__random_state")) and v is None
     )
+
+
+def _seed_estimator(model: Any, seed: np.random.SeedSequence, keys: list[str] | None = None) -> Any:
+    """Clone ``model``; set every ``random_state`` left as None to an int drawn from ``seed``.
+
+    Keys are visited in sorted order so the assignment is deterministic. ``keys`` may be given
+    (from :func:`_random_state_keys` of the same model) to skip looking them up on every fit.
+    """
+    est = clone(model)
+    if keys is None:
+        keys = _random_state_keys(est)
     if keys:
         draws = np.random.default_rng(seed).integers(0, 2**31 - 1, size=len(keys))
         est.set_params(**{k: int(d) for k, d in zip(keys, draws)})
@@ -47,9 +54,10 @@ def _fit_one(
     y: NDArray[np.float64],
     w: NDArray[np.float64] | None,
     X_eval: NDArray[np.float64],
+    keys: list[str] | None = None,
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Fit one clone; return (predictions on X, predictions on X_eval). Raises on failure."""
-    est = _seed_estimator(model, seed)
+    est = _seed_estimator(model, seed, keys)
     if w is None:
         est.fit(X, y)
     else:
@@ -60,6 +68,12 @@ def _fit_one(
         if X_eval.shape[0]
         else np.empty(0)
     )
+    for pred, rows in ((pred_train, X.shape[0]), (pred_eval, X_eval.shape[0])):
+        if pred.shape[0] != rows:
+            raise ValueError(
+                f"predict returned {pred.shape[0]} values for {rows} rows; a regressor must "
+                "return one prediction per row"
+            )
     if not (np.all(np.isfinite(pred_train)) and np.all(np.isfinite(pred_eval))):
         raise FloatingPointError("the fitted model returned NaN or infinite predictions")
     return pred_train, pred_eval
@@ -78,7 +92,7 @@ def _message(exc: BaseException) -> str:
     return f"{type(exc).__name__}: {text[0] if text else ''}".rstrip(": ")
 
 
-def _one_resample(problem: Problem, r: Resample) -> Outcome:
+def _one_resample(problem: Problem, r: Resample, keys: list[list[str]]) -> Outcome:
     C = problem.n_capacities
     X_tr, y_tr, w = problem.training_set(r)
     X_ev = problem.X_eval[r.test]
@@ -93,7 +107,13 @@ def _one_resample(problem: Problem, r: Resample) -> Outcome:
             continue
         try:
             pred_tr, pred_ev = _fit_one(
-                model, child_seed(problem.root, STREAM_ESTIMATOR, r.index, c), X_tr, y_tr, w, X_ev
+                model,
+                child_seed(problem.root, STREAM_ESTIMATOR, r.index, c),
+                X_tr,
+                y_tr,
+                w,
+                X_ev,
+                keys[c],
             )
         except Exception as exc:  # a failing fit is recorded, the sweep goes on
             failures[c] = _message(exc)
@@ -104,7 +124,8 @@ def _one_resample(problem: Problem, r: Resample) -> Outcome:
 
 
 def _chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
-    return [_one_resample(problem, r) for r in chunk]
+    keys = [_random_state_keys(m) for m in problem.models]  # once per chunk, not per fit
+    return [_one_resample(problem, r, keys) for r in chunk]
 
 
 def _chunks(resamples: Sequence[Resample], n_jobs: int | None) -> list[Sequence[Resample]]:
