@@ -21,6 +21,7 @@ from .ladders import FeatureLadder, Ladder, ParamLadder, PolynomialLadder
 from .noise import NoiseEstimate, estimate_noise
 from .plans import Bootstrap, CrossValidation, Plan, Simulation
 from .result import SweepResult, load_result
+from .selector import ComplexitySelector, ExtrapolationWarning
 from .sweep import CapacityWarning, SweepFailedError, sweep
 
 try:
@@ -31,7 +32,9 @@ except PackageNotFoundError:  # running from a source tree without installing
 __all__ = [
     "Bootstrap",
     "CapacityWarning",
+    "ComplexitySelector",
     "CrossValidation",
+    "ExtrapolationWarning",
     "FeatureLadder",
     "Ladder",
     "NoiseEstimate",

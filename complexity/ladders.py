@@ -14,7 +14,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-import pandas as pd
 from numpy.typing import NDArray
 from sklearn.base import BaseEstimator, TransformerMixin, clone
 from sklearn.dummy import DummyRegressor
@@ -42,14 +41,18 @@ class Ladder:
     def capacities(self) -> tuple[Any, ...]:
         raise NotImplementedError
 
-    def check_data(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None) -> list[str]:
+    def check_data(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None
+    ) -> list[str]:
         """Check that the data can support every capacity; return warnings (strings).
 
         Raises ``ValueError`` when a capacity cannot be fitted at all on the full data.
         """
         return []
 
-    def build(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None) -> list[Any]:
+    def build(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> list[Any]:
         """Return one unfitted estimator per capacity, with any data-derived settings fixed from X."""
         raise NotImplementedError
 
@@ -137,9 +140,13 @@ class PolynomialLadder(Ladder):
             try:
                 lo, hi = (float(domain[0]), float(domain[1]))
             except (TypeError, ValueError, IndexError):
-                raise TypeError(f"domain must be a (low, high) pair of numbers; got {_short_repr(domain)}.") from None
+                raise TypeError(
+                    f"domain must be a (low, high) pair of numbers; got {_short_repr(domain)}."
+                ) from None
             if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
-                raise ValueError(f"domain must be a finite interval with low < high; got {domain!r}.")
+                raise ValueError(
+                    f"domain must be a finite interval with low < high; got {domain!r}."
+                )
             domain = (lo, hi)
         self.domain = domain
 
@@ -157,7 +164,9 @@ class PolynomialLadder(Ladder):
             return np.array([self.domain], dtype=np.float64)
         return np.column_stack([X.min(axis=0), X.max(axis=0)])
 
-    def check_data(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None) -> list[str]:
+    def check_data(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None
+    ) -> list[str]:
         spans = X.max(axis=0) - X.min(axis=0)
         if np.any(spans == 0):
             col = int(np.flatnonzero(spans == 0)[0])
@@ -184,7 +193,9 @@ class PolynomialLadder(Ladder):
             )
         return warnings
 
-    def build(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None) -> list[Any]:
+    def build(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> list[Any]:
         from .basis import LegendreFeatures
 
         domain = self._domain_for(X)
@@ -263,6 +274,12 @@ def _rank_forward_f(
         chosen.append(j)
     rest = [j for j in range(p) if free[j]]
     return np.array(chosen + rest, dtype=np.intp)
+
+
+def _count_distinct_rows(X: NDArray[np.float64]) -> int:
+    """Number of distinct rows, comparing each row's bytes (fast for wide X)."""
+    A = np.ascontiguousarray(X + 0.0)  # + 0.0 turns -0.0 into 0.0
+    return int(np.unique(A.view(np.dtype((np.void, A.dtype.itemsize * A.shape[1])))).size)
 
 
 def _callable_name(func: Any) -> str:
@@ -367,8 +384,9 @@ class FeatureLadder(Ladder):
           predictors already in (with an intercept). Its first step is the univariate F test,
           which ranks exactly like ``"correlation"``.
         - A callable ``order(X_train, y_train) -> positions``: column positions, best first, at
-          least ``max(counts)`` of them (e.g. ``np.argsort(-scores)``). It receives float arrays
-          and must not modify them.
+          least ``max(counts)`` of them (e.g. ``np.argsort(-scores)``). It receives the training
+          rows of one resample as float arrays (bootstrap repeats included) and must not modify
+          them.
 
         Ranked orders are recomputed on every training set (also in the fit on all the data), so
         the ladder runs on the generic engine; ``result.inclusion`` reports how often each
@@ -384,6 +402,15 @@ class FeatureLadder(Ladder):
     (1, 2, 3)
     >>> cx.FeatureLadder(counts=[1, 2], order="correlation").linear_least_squares
     False
+
+    Ranked inside every training set, with how often each predictor made the first k:
+
+    >>> from sklearn.datasets import load_diabetes
+    >>> X, y = load_diabetes(return_X_y=True, as_frame=True)
+    >>> result = cx.sweep(cx.FeatureLadder([1, 2, 3], order="f-test"), X, y,
+    ...                   plan=cx.CrossValidation(5), random_state=0)
+    >>> result.inclusion.loc[1].idxmax()
+    'bmi'
     """
 
     capacity_name = "n_features"
@@ -493,7 +520,9 @@ class FeatureLadder(Ladder):
         """Least squares on k predictors and an intercept needs k + 1 distinct training rows."""
         k = self.counts[index]
         if self.estimator is None and k > 0:
-            have = _distinct_rows(X_train)
+            have = X_train.shape[0]
+            if have >= k + 1:
+                have = _count_distinct_rows(X_train)
             if have < k + 1:
                 return (
                     f"training set has {have} distinct row(s); least squares on {k} predictor(s) "
@@ -630,7 +659,9 @@ class ParamLadder(Ladder):
     def capacities(self) -> tuple[Any, ...]:
         return self.values
 
-    def build(self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None) -> list[Any]:
+    def build(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> list[Any]:
         return [clone(self.estimator).set_params(**{self.param: v}) for v in self.values]
 
     def describe(self) -> dict[str, Any]:

@@ -69,7 +69,9 @@ def _linear_engine() -> Any:
 def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
     check_option("engine", engine, ENGINES)
     linear = _linear_engine()
-    fits_exact = linear is not None and problem.ladder.linear_least_squares and linear.supports(problem)
+    fits_exact = (
+        linear is not None and problem.ladder.linear_least_squares and linear.supports(problem)
+    )
     if engine == "exact" and not fits_exact:
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
@@ -81,9 +83,20 @@ def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
     return linear, "exact"
 
 
-def _noise_for(
-    noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | None
-) -> NoiseEstimate:
+def _check_weight_support(models: list[Any]) -> None:
+    """Refuse sample_weight up front when a model's final step cannot take it."""
+    from sklearn.utils.validation import has_fit_parameter
+
+    for model in models:
+        final = model.steps[-1][1] if hasattr(model, "steps") else model
+        if not has_fit_parameter(final, "sample_weight"):
+            raise TypeError(
+                f"sample_weight was given, but {type(final).__name__}.fit takes no sample_weight; "
+                "drop sample_weight or use an estimator whose fit accepts it."
+            )
+
+
+def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | None) -> NoiseEstimate:
     if isinstance(plan, Simulation):
         return NoiseEstimate(
             value=plan.noise_sd**2,
@@ -94,7 +107,9 @@ def _noise_for(
     return estimate_noise(X, y, noise)
 
 
-def _all_failed_error(acc: PointAccumulator, full: FullFit | None, capacities: tuple) -> SweepFailedError:
+def _all_failed_error(
+    acc: PointAccumulator, full: FullFit | None, capacities: tuple
+) -> SweepFailedError:
     messages = dict(acc.failures.first)
     if full is not None:
         for c, m in full.failures.items():
@@ -226,6 +241,7 @@ def sweep(
                     f"sample_weight must hold one finite, non-negative weight per row ({n_obs}); "
                     f"got shape {w.shape}."
                 )
+            _check_weight_support(models)
 
     problem = Problem(
         ladder=ladder,
@@ -245,8 +261,12 @@ def sweep(
         raise ValueError("sample_weight needs the generic engine.")
     noise_est = _noise_for(noise, plan, Xd, yd)
 
-    resamples = plan.resamples(X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups)
+    resamples = plan.resamples(
+        X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups
+    )
     n_replicates = max(r.replicate for r in resamples) + 1
+    inclusion_of = getattr(ladder, "inclusion", None)  # feature ladders: who was among the first k
+    inclusion = inclusion_of(problem, resamples, names) if callable(inclusion_of) else None
     C = len(ladder.capacities)
     acc = PointAccumulator(X_eval.shape[0], C, len(resamples), n_replicates, keep_predictions)
 
@@ -260,7 +280,13 @@ def sweep(
             eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
             if checkpoint is None
             else resume(
-                checkpoint, eng, engine_used, problem, resamples, n_jobs=n_jobs, on_done=counter.update
+                checkpoint,
+                eng,
+                engine_used,
+                problem,
+                resamples,
+                n_jobs=n_jobs,
+                on_done=counter.update,
             )
         )
         for outcome in outcomes:
@@ -338,7 +364,9 @@ def sweep(
         "n_replicates": n_replicates,
         "seed_entropy": int(root.entropy) if isinstance(root.entropy, int) else str(root.entropy),
         "seed_spawn_key": list(root.spawn_key),
-        "random_state": random_state if isinstance(random_state, (int, type(None))) else repr(random_state),
+        "random_state": random_state
+        if isinstance(random_state, (int, type(None)))
+        else repr(random_state),
         "engine": engine_used,
         "stability_rule": stab_rule,
         "versions": _versions(),
@@ -358,5 +386,5 @@ def sweep(
         metadata=metadata,
         predictions=predictions,
         coefficient_tables=None if full is None else full.coefficients,
+        inclusion=inclusion,
     )
-

@@ -1,0 +1,274 @@
+"""``ComplexitySelector``: choose a capacity inside scikit-learn workflows.
+
+The selector is a scikit-learn regressor whose ``fit`` runs the whole procedure (sweep the ladder
+over resampled training sets, pick a capacity by a rule, refit the model at that capacity on all
+the data), so it can be the last step of a :class:`~sklearn.pipeline.Pipeline`, be assessed by an
+outer :func:`~sklearn.model_selection.cross_val_score` and be tuned by
+:class:`~sklearn.model_selection.GridSearchCV`.
+
+The sweep's own test error at the chosen capacity is the minimum (or near minimum) of many noisy
+estimates, so it is optimistic. The honest figure for the procedure is an outer loop around the
+selector (nested assessment: Varma & Simon 2006; METHODS.md §11):
+``cross_val_score(ComplexitySelector(ladder), X, y, cv=outer)``.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+from sklearn.base import BaseEstimator, RegressorMixin
+from sklearn.utils.validation import check_is_fitted
+
+from ._validation import _short_repr
+from .engine.generic import _seed_estimator, _weight_kwargs
+from .ladders import Ladder, PolynomialLadder
+from .plans import STREAM_FULL_FIT, child_seed
+from .sweep import sweep
+
+try:  # scikit-learn >= 1.6
+    from sklearn.utils.validation import validate_data as _sk_validate_data
+except ImportError:  # pragma: no cover - older scikit-learn
+    _sk_validate_data = None
+
+__all__ = ["ComplexitySelector", "ExtrapolationWarning"]
+
+
+class ExtrapolationWarning(UserWarning):
+    """A fitted polynomial is asked for predictions outside the x range it was fitted on.
+
+    Polynomials diverge quickly beyond their data; such predictions are extrapolations.
+    """
+
+
+def _validate(est: BaseEstimator, X: Any, y: Any = "no_validation", **kw: Any) -> Any:
+    """scikit-learn's own input validation (sets n_features_in_ / feature_names_in_ on reset)."""
+    if _sk_validate_data is not None:
+        return _sk_validate_data(est, X, y, **kw)
+    return est._validate_data(X, y, **kw)  # pragma: no cover - older scikit-learn
+
+
+class _Once:
+    """A flag that flips once; kept in the fitted state so repeated predictions warn once."""
+
+    __slots__ = ("done",)
+
+    def __init__(self) -> None:
+        self.done = False
+
+    def __getstate__(self) -> dict[str, bool]:
+        return {"done": self.done}
+
+    def __setstate__(self, state: dict[str, bool]) -> None:
+        self.done = state["done"]
+
+
+def _position(capacities: tuple[Any, ...], value: Any) -> int:
+    for i, c in enumerate(capacities):
+        if c is value or (c is not None and value is not None and c == value):
+            return i
+    raise ValueError(
+        f"capacity {value!r} is not on the ladder {list(capacities)}."
+    )  # pragma: no cover
+
+
+class ComplexitySelector(RegressorMixin, BaseEstimator):
+    """A regressor that chooses its own capacity: sweep, pick by a rule, refit on all data.
+
+    ``fit(X, y)`` runs :func:`complexity.sweep` on the ladder and plan, takes the capacity the
+    rule recommends, and fits the ladder's model at that capacity on all of ``X, y``;
+    ``predict`` and ``score`` use that model. Every step that looks at y (ranking predictors,
+    choosing the capacity) happens inside ``fit``, so an outer resampling loop around the selector
+    assesses the whole procedure honestly.
+
+    Parameters
+    ----------
+    ladder : Ladder
+        :class:`~complexity.PolynomialLadder`, :class:`~complexity.FeatureLadder` or
+        :class:`~complexity.ParamLadder`. Stored as given; the sweep never fits it in place.
+    plan : Plan, scikit-learn splitter or int, optional
+        Where the training sets of the sweep come from (default ``Bootstrap(200)``; an int K
+        means ``CrossValidation(K)``).
+    rule : str, default="one-se"
+        The rule that picks the capacity: ``"min"``, ``"one-se"``, or for least-squares ladders
+        on the exact engine ``"loocv"``, ``"gcv"``, ``"aic"``, ``"aicc"``, ``"bic"``, ``"cp"``.
+    noise : "auto", "replicates", "differences", "neighbours" or float, default="auto"
+        Noise-variance estimate used to split squared bias from noise in ``result_``; it does
+        not affect the ``"min"`` and ``"one-se"`` rules.
+    engine : {"auto", "exact", "generic"}, default="auto"
+        Passed to the sweep.
+    n_jobs : int, optional
+        Workers for the sweep (results are identical for any value).
+    random_state : None, int, SeedSequence or Generator, optional
+        Seed of the sweep; with an int, refitting gives the same capacity and model.
+
+    Attributes
+    ----------
+    capacity_ : object
+        The chosen capacity (e.g. a degree).
+    result_ : SweepResult
+        The full sweep: curves, rules, stability. Its test error at ``capacity_`` is a selection
+        score, optimistic as an estimate of performance; assess the selector with an outer loop.
+    estimator_ : estimator
+        The model at ``capacity_``, fitted on all the data.
+    n_features_in_ : int
+        Number of predictors seen in ``fit``.
+    feature_names_in_ : ndarray of str
+        Column names seen in ``fit`` (only when X was a DataFrame with string column names).
+    x_range_ : ndarray of shape (n_features_in_, 2)
+        Smallest and largest value of each predictor seen in ``fit``. For a polynomial ladder,
+        predicting outside it raises one :class:`ExtrapolationWarning` per fitted selector.
+
+    Examples
+    --------
+    >>> import complexity as cx
+    >>> from sklearn.model_selection import KFold, cross_val_score
+    >>> X, y = cx.datasets.pressure_sensor()
+    >>> sel = cx.ComplexitySelector(cx.PolynomialLadder(range(0, 6)), plan=cx.CrossValidation(5),
+    ...                             random_state=0)
+    >>> sel.fit(X, y).capacity_ in range(0, 6)
+    True
+    >>> outer = cross_val_score(sel, X, y, cv=KFold(5, shuffle=True, random_state=1),
+    ...                         scoring="neg_mean_squared_error")
+    >>> len(outer)
+    5
+    """
+
+    def __init__(
+        self,
+        ladder: Ladder,
+        *,
+        plan: Any = None,
+        rule: str = "one-se",
+        noise: Any = "auto",
+        engine: str = "auto",
+        n_jobs: int | None = None,
+        random_state: Any = None,
+    ) -> None:
+        self.ladder = ladder
+        self.plan = plan
+        self.rule = rule
+        self.noise = noise
+        self.engine = engine
+        self.n_jobs = n_jobs
+        self.random_state = random_state
+
+    def fit(
+        self, X: Any, y: Any, groups: Any = None, sample_weight: Any = None
+    ) -> ComplexitySelector:
+        """Sweep the ladder, choose the capacity by ``rule``, refit it on all the data.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+            Predictors (a DataFrame keeps its column names, also in ``result_``).
+        y : array-like of shape (n_samples,)
+            Response.
+        groups : array-like of shape (n_samples,), optional
+            Group labels for a group-aware splitter given as ``plan`` (e.g. ``GroupKFold``).
+        sample_weight : array-like of shape (n_samples,), optional
+            Per-row weights for every fit (the sweep's and the final one); the estimator must
+            accept ``sample_weight``, else a ``TypeError`` says so.
+
+        Returns
+        -------
+        self : ComplexitySelector
+        """
+        if not isinstance(self.ladder, Ladder):
+            raise TypeError(
+                "ladder must be cx.PolynomialLadder(...), cx.FeatureLadder(...) or "
+                f"cx.ParamLadder(...); got {_short_repr(self.ladder)}."
+            )
+        Xa, ya = _validate(self, X, y, dtype=np.float64, y_numeric=True, ensure_min_samples=3)
+        if sample_weight is not None:
+            w = np.asarray(sample_weight)
+            if w.dtype.kind in "iuf" and w.size and np.all(w == 0):
+                raise ValueError(
+                    "sample_weight is zero for every row; at least one weight must be positive."
+                )
+        names = getattr(self, "feature_names_in_", None)
+        X_sweep: Any = Xa if names is None else pd.DataFrame(Xa, columns=list(names))
+        self.result_ = sweep(
+            self.ladder,
+            X_sweep,
+            ya,
+            plan=self.plan,
+            noise=self.noise,
+            rule=self.rule,
+            n_jobs=self.n_jobs,
+            random_state=self.random_state,
+            engine=self.engine,
+            groups=groups,
+            sample_weight=sample_weight,
+        )
+        self.capacity_ = self.result_.recommended
+        position = _position(self.ladder.capacities, self.capacity_)
+        model = self.ladder.build(Xa, None if names is None else tuple(str(n) for n in names))[
+            position
+        ]
+        # the same seed the sweep used for its full-data fit at this capacity
+        meta = self.result_.metadata
+        root = np.random.SeedSequence(meta["seed_entropy"], spawn_key=tuple(meta["seed_spawn_key"]))
+        estimator = _seed_estimator(model, child_seed(root, STREAM_FULL_FIT, position))
+        if sample_weight is None:
+            estimator.fit(Xa, ya)
+        else:
+            w = np.asarray(sample_weight, dtype=np.float64)
+            estimator.fit(Xa, ya, **_weight_kwargs(estimator, w))
+        self.estimator_ = estimator
+        self.x_range_ = np.column_stack([Xa.min(axis=0), Xa.max(axis=0)])
+        self._extrapolation_warned = _Once()
+        return self
+
+    def predict(self, X: Any) -> NDArray[np.float64]:
+        """Predict with the model at the chosen capacity.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_samples,)
+
+        Warns
+        -----
+        ExtrapolationWarning
+            Once per fitted selector, when a polynomial ladder is asked to predict outside the
+            range of the predictors seen in ``fit``.
+        """
+        check_is_fitted(self, "estimator_")
+        Xa = _validate(self, X, dtype=np.float64, reset=False)
+        if isinstance(self.ladder, PolynomialLadder):
+            self._guard_extrapolation(Xa)
+        return np.asarray(self.estimator_.predict(Xa), dtype=np.float64).reshape(-1)
+
+    def _guard_extrapolation(self, X: NDArray[np.float64]) -> None:
+        once = self._extrapolation_warned
+        if once.done or X.shape[0] == 0:
+            return
+        lo, hi = self.x_range_[:, 0], self.x_range_[:, 1]
+        slack = 1e-12 * np.maximum(hi - lo, np.abs(hi) + np.abs(lo))
+        outside = (X < lo - slack) | (X > hi + slack)
+        if not outside.any():
+            return
+        once.done = True
+        col = int(np.flatnonzero(outside.any(axis=0))[0])
+        names = getattr(self, "feature_names_in_", None)
+        label = f"'{names[col]}'" if names is not None else f"column {col}"
+        warnings.warn(
+            f"{int(outside.any(axis=1).sum())} of {X.shape[0]} row(s) lie outside the fitted range "
+            f"of x ({label}: [{lo[col]:.6g}, {hi[col]:.6g}]); a polynomial of degree "
+            f"{self.capacity_} diverges beyond its data, so these predictions are extrapolations. "
+            "(Warned once per fitted selector.)",
+            ExtrapolationWarning,
+            stacklevel=3,
+        )
+
+    def __sklearn_tags__(self) -> Any:
+        tags = super().__sklearn_tags__()
+        tags.input_tags.allow_nan = False
+        return tags
