@@ -7,7 +7,8 @@ by any tool. Schema (``"format": "complexity.sweep-result"``, ``"version": 1``):
 
     {"format", "version",
      "capacity_name": str, "capacities": [...], "recommended": value, "rule": str,
-     "curves":    {"columns": [...], "data": {column: [...]}},
+     "curves":    {"columns": [...], "dtypes": {column: numpy dtype name},
+                   "data": {column: [...]}},
      "rules":     [{"rule", "capacity", "reason"}, ...],
      "stability": [share per capacity],
      "noise":     {"value", "method", "df", "detail"},
@@ -248,6 +249,7 @@ class SweepResult:
             "rule": self.rule,
             "curves": {
                 "columns": list(self.curves.columns),
+                "dtypes": {c: str(self.curves[c].dtype) for c in self.curves},
                 "data": {c: [_plain(v) for v in self.curves[c].tolist()] for c in self.curves},
             },
             "rules": [
@@ -343,11 +345,9 @@ def load_result(path: str | Path) -> SweepResult:
     index = capacity_index(doc["capacities"], doc["capacity_name"])
     data = {c: _decode_column(doc["curves"]["data"][c]) for c in doc["curves"]["columns"]}
     curves = pd.DataFrame(data, index=index, columns=doc["curves"]["columns"])
+    kinds = doc["curves"].get("dtypes", {})
     for c in curves.columns:
-        if c in ("n_scored", "failed_fits"):
-            curves[c] = curves[c].astype(np.int64)
-        else:
-            curves[c] = curves[c].astype(np.float64)
+        curves[c] = curves[c].astype(np.dtype(kinds.get(c, "float64")))
     rules = pd.DataFrame(doc["rules"], columns=["rule", "capacity", "reason"]).set_index("rule")
     stability = pd.Series(
         np.array(_decode_column(doc["stability"]), dtype=np.float64),
