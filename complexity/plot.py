@@ -191,6 +191,22 @@ def _bar_width(x: np.ndarray) -> float:
     return 0.8 * float(np.min(np.diff(x)))
 
 
+def _legend(ax: Axes, below: bool, handles: list[Any] | None = None) -> None:
+    """A legend under the plot for our own figures, else inside the user's axes where it fits."""
+    if handles is None:
+        handles, labels = ax.get_legend_handles_labels()
+    else:
+        labels = [h.get_label() for h in handles]
+    if below:
+        longest = max((len(t) for t in labels), default=0)
+        columns = 3 if longest <= 30 else (2 if longest <= 50 else 1)
+        ax.figure.legend(
+            handles, labels, loc="outside lower center", ncols=min(columns, len(labels))
+        )
+    else:
+        ax.legend(handles, labels, loc="best")
+
+
 def _recommended_position(result: SweepResult) -> int:
     caps = list(result.curves.index)
     for i, c in enumerate(caps):
@@ -240,7 +256,12 @@ def _column(result: SweepResult, name: str) -> np.ndarray:
 
 
 def _draw_errors(
-    result: SweepResult, ax: Axes, *, y_units: str | None = None, log: Any = "auto"
+    result: SweepResult,
+    ax: Axes,
+    *,
+    y_units: str | None = None,
+    log: Any = "auto",
+    below: bool = False,
 ) -> None:
     caps = list(result.curves.index)
     x, labels = _capacity_positions(caps)
@@ -304,11 +325,16 @@ def _draw_errors(
     _capacity_axis(ax, result, x, labels)
     ax.set_ylabel(_error_label(y_units))
     ax.set_title(f"Training and test error by {capacity_words(result.capacity_name)}")
-    ax.legend(loc="upper right")
+    _legend(ax, below)
 
 
 def _draw_parts(
-    result: SweepResult, ax: Axes, *, y_units: str | None = None, clip: bool = True
+    result: SweepResult,
+    ax: Axes,
+    *,
+    y_units: str | None = None,
+    clip: bool = True,
+    below: bool = False,
 ) -> None:
     caps = list(result.curves.index)
     x, labels = _capacity_positions(caps)
@@ -374,22 +400,22 @@ def _draw_parts(
                 )
     if np.any(np.isfinite(bias) & (bias < 0)):
         ax.text(
-            0.01,
-            0.99,
+            1.0,
+            1.01,
             "estimated squared bias below zero shown as zero",
             transform=ax.transAxes,
-            ha="left",
-            va="top",
+            ha="right",
+            va="bottom",
             fontsize=7.5,
             color="#555555",
         )
     _capacity_axis(ax, result, x, labels)
     ax.set_ylabel(_error_label(y_units))
     ax.set_title("Where the test error comes from")
-    ax.legend(loc="upper right")
+    _legend(ax, below)
 
 
-def _draw_stability(result: SweepResult, ax: Axes) -> None:
+def _draw_stability(result: SweepResult, ax: Axes, *, below: bool = False) -> None:
     caps = list(result.curves.index)
     x, labels = _capacity_positions(caps)
     pos = _recommended_position(result)
@@ -421,7 +447,7 @@ def _draw_stability(result: SweepResult, ax: Axes) -> None:
     _capacity_axis(ax, result, x, labels)
     ax.set_ylabel("replicates choosing it (%)")
     ax.set_title(f"How often each {capacity_words(result.capacity_name)} is chosen (rule {rule})")
-    ax.legend(loc="upper right")
+    _legend(ax, below)
 
 
 def _diagnostic_columns(curves: pd.DataFrame) -> tuple[str | None, str | None]:
@@ -455,7 +481,7 @@ def _spread(values: np.ndarray) -> float:
     return float(finite.max() / finite.min())
 
 
-def _draw_conditioning(result: SweepResult, ax: Axes) -> None:
+def _draw_conditioning(result: SweepResult, ax: Axes, *, below: bool = False) -> None:
     cond, coef = _diagnostic_columns(result.curves)
     if cond is None and coef is None:
         raise ValueError(
@@ -474,13 +500,13 @@ def _draw_conditioning(result: SweepResult, ax: Axes) -> None:
             values,
             marker="s",
             color=COLOURS["train"],
-            label=f"design condition number (column {cond})",
+            label="design condition number",
             gid="condition",
         )
         handles.append(line)
         if _spread(values) > 30:
             ax.set_yscale("log")
-        ax.set_ylabel("condition number")
+        ax.set_ylabel(f"condition number ({cond})")
     if coef is not None:
         target = ax.twinx() if cond is not None else ax
         if target is not ax:
@@ -492,18 +518,18 @@ def _draw_conditioning(result: SweepResult, ax: Axes) -> None:
             values,
             marker="o",
             color=COLOURS["bias"],
-            label=f"coefficient size (column {coef})",
+            label="coefficient size",
             gid="coefficient-size",
         )
         handles.append(line)
         if _spread(values) > 30:
             target.set_yscale("log")
-        target.set_ylabel("coefficient size")
+        target.set_ylabel(f"coefficient size ({coef})")
     _mark_recommended(first, result, x[pos])
     handles.append(next(a for a in first.get_lines() if a.get_gid() == "recommended"))
     _capacity_axis(first, result, x, labels)
     first.set_title("Design conditioning and coefficient size")
-    first.legend(handles=handles, loc="upper left")
+    _legend(first, below, handles=handles)
 
 
 def _ladder_from_metadata(result: SweepResult) -> Ladder:
@@ -534,6 +560,7 @@ def _draw_fits(
     result: SweepResult,
     ax: Axes,
     *,
+    below: bool = False,
     X: Any,
     y: Any,
     ladder: Ladder | None = None,
@@ -665,7 +692,7 @@ def _draw_fits(
     ax.set_xlabel(_with_units(str(x_name), x_units))
     ax.set_ylabel(_with_units(str(y_name), y_units))
     ax.set_title(f"Fitted curves near the recommended {words}")
-    ax.legend(loc="best")
+    _legend(ax, below)
 
 
 # --------------------------------------------------------------------------------------------
@@ -750,21 +777,23 @@ def plot(
         raise TypeError(f"result must be a SweepResult; got {_short_repr(result)}.")
     check_option("view", view, VIEWS)
     mpl = _matplotlib()
-    size = (7.0, 4.6) if view == "fits" else (7.0, 4.2)
+    size = (7.0, 5.4) if view == "fits" else (7.0, 4.8)
+    below = ax is None  # our own figure: the legend goes under the plot, never over the data
     with mpl.rc_context(_STYLE):
         fig, axes = _new_axes(ax, size)
         if view == "errors":
-            _draw_errors(result, axes, y_units=y_units, log=log)
+            _draw_errors(result, axes, y_units=y_units, log=log, below=below)
         elif view == "parts":
-            _draw_parts(result, axes, y_units=y_units, clip=clip)
+            _draw_parts(result, axes, y_units=y_units, clip=clip, below=below)
         elif view == "stability":
-            _draw_stability(result, axes)
+            _draw_stability(result, axes, below=below)
         elif view == "conditioning":
-            _draw_conditioning(result, axes)
+            _draw_conditioning(result, axes, below=below)
         else:
             _draw_fits(
                 result,
                 axes,
+                below=below,
                 X=X,
                 y=y,
                 ladder=ladder,

@@ -65,9 +65,11 @@ def _renders(fig: Figure) -> np.ndarray:
 
 
 def _legend_texts(ax: Axes) -> list[str]:
-    legend = ax.get_legend()
-    assert legend is not None
-    return [t.get_text() for t in legend.get_texts()]
+    # our own figures put the legend under the plot (a figure legend); in a user's axes it is
+    # the axes' legend
+    legends = [ax.get_legend()] if ax.get_legend() is not None else list(ax.figure.legends)
+    assert len(legends) == 1
+    return [t.get_text() for t in legends[0].get_texts()]
 
 
 def test_errors_view(result):
@@ -242,6 +244,7 @@ def test_draws_into_given_axes(result):
     assert plot(result, "errors", ax=ax1) is fig
     assert plot(result, "stability", ax=ax2) is fig
     assert len(fig.axes) == 2 and ax1.get_lines()
+    assert ax1.get_legend() is not None and not fig.legends  # legends stay inside the user's axes
     with pytest.raises(TypeError, match="ax must be a matplotlib Axes"):
         plot(result, "errors", ax="left")
 
@@ -296,3 +299,18 @@ def test_missing_matplotlib_names_the_extra(result, monkeypatch):
         monkeypatch.setitem(sys.modules, name, None)
     with pytest.raises(ImportError, match=r'pip install "complexity\[plot\]"'):
         plot(result)
+
+
+def test_conditioning_view_of_an_exact_sweep(result):
+    # the exact least-squares engine records conditioning and coefficient size per degree
+    assert result.metadata["engine"] == "exact" and has_diagnostics(result)
+    fig = plot(result, "conditioning")
+    _renders(fig)
+    np.testing.assert_array_equal(
+        _line(fig.axes[0], "condition").get_ydata(), result.curves["condition_number"].to_numpy()
+    )
+    np.testing.assert_array_equal(
+        _line(fig.axes[1], "coefficient-size").get_ydata(),
+        result.curves["max_abs_coefficient"].to_numpy(),
+    )
+    assert "conditioning" in figures(result, views=["conditioning", "errors"])
