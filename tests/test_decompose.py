@@ -54,7 +54,7 @@ def test_oob_mean_model_limits():
     # v_i -> var0(y without i)/n, for y = (1,3,2,5,4):
     # fbar = (3.5, 3.0, 3.25, 2.5, 2.75), v = (0.25, 0.5, 0.4375, 0.25, 0.4375).
     y = np.array([1.0, 3.0, 2.0, 5.0, 4.0])
-    B = 15000
+    B = 40000
     acc = PointAccumulator(5, 1, B, B)
     for out in _mean_model_outcomes(y, B, 0):
         acc.add(out)
