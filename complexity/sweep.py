@@ -6,6 +6,7 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 
 from __future__ import annotations
 
+import dataclasses
 import platform
 import sys
 import time
@@ -26,7 +27,7 @@ from ._validation import (
 from .accumulate import PointAccumulator
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, replicate_curves
-from .engine import FullFit, Problem
+from .engine import FullFit, Outcome, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
 from .noise import NoiseEstimate, estimate_noise
@@ -105,6 +106,30 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
             detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
         )
     return estimate_noise(X, y, noise)
+
+
+def _guard_overflow(outcome: Outcome, n_points: int) -> Outcome:
+    """Record as failed every capacity whose residuals are too large for the error sums.
+
+    Sums of squared residuals (and of their squares, for standard errors) would overflow to
+    infinity; such a fit is reported as a failure with its size instead of as an inf curve.
+    """
+    res = outcome.residuals
+    with np.errstate(over="ignore", invalid="ignore"):
+        big = np.max(np.where(np.isfinite(res), np.abs(res), 0.0), axis=0, initial=0.0)
+        bad = ~np.isfinite(big**4 * float(max(n_points, 1)))
+    if not bad.any():
+        return outcome
+    res, train_mse, failures = res.copy(), outcome.train_mse.copy(), dict(outcome.failures)
+    for c in np.flatnonzero(bad):
+        res[:, c] = np.nan
+        train_mse[c] = np.nan
+        failures.setdefault(
+            int(c),
+            f"predictions so far from the targets (|prediction - target| up to {big[c]:.3g}) "
+            "that error sums overflow float64",
+        )
+    return dataclasses.replace(outcome, residuals=res, train_mse=train_mse, failures=failures)
 
 
 def _all_failed_error(
@@ -290,7 +315,7 @@ def sweep(
             )
         )
         for outcome in outcomes:
-            acc.add(outcome)
+            acc.add(_guard_overflow(outcome, X_eval.shape[0]))
     finally:
         counter.close()
 
