@@ -1,5 +1,13 @@
 """Exact least-squares path: every capacity of a nested ladder from one factorisation.
 
+Two layers live here:
+
+- building blocks for one data set: :func:`nested_least_squares` (one QR, every capacity),
+  :func:`scaled_design`, :func:`user_coefficients`, :func:`fit_polynomial`, :func:`fit_linear`;
+- the engine ``sweep()`` uses for least-squares ladders (:func:`supports`, :func:`fit_full`,
+  :func:`run`), which serves every resample of a plan from one basis (see the notes above
+  :func:`supports`).
+
 A nested ladder uses a leading block of the columns of one design ``Z`` at every capacity
 (polynomial degree on the graded Legendre basis of :mod:`complexity.basis`, or the first k
 predictors of a feature ladder). One Householder QR of the largest design, without column
@@ -12,9 +20,10 @@ pivoting (pivoting would reorder the columns and break the nesting), gives every
 
 from __future__ import annotations
 
+import functools
 import math
 import numbers
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -23,15 +32,19 @@ import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 
 from ..basis import PolynomialBasis, _exact_residuals
+from . import FullFit, Outcome, Problem
 
 __all__ = [
     "NestedFit",
     "ScaledDesign",
     "UserCoefficients",
+    "fit_full",
     "fit_linear",
     "fit_polynomial",
     "nested_least_squares",
+    "run",
     "scaled_design",
+    "supports",
     "user_coefficients",
 ]
 
@@ -624,3 +637,753 @@ def fit_linear(X: ArrayLike, y: ArrayLike, *, fit_intercept: bool = True) -> Use
     n_feat = design.center.size
     terms: list[Any] = (["intercept"] if fit_intercept else []) + list(range(n_feat))
     return user_coefficients(fit, 0, design.to_user_matrix(P), terms)
+
+
+# ============================================================================================
+# The exact engine used by sweep(): every capacity of every resample from one basis
+# ============================================================================================
+#
+# Notation. Z(x) is the ladder's design (graded Legendre columns, or [1, scaled predictors]);
+# capacity c uses its first n_cols[c] columns. One Householder QR of the reference design,
+# Z_ref = Q0 R0, gives basis functions q(x) = Z(x) R0^{-1} that are orthonormal over the reference
+# rows and nested like Z. A training set is a weight vector c (bootstrap multiplicities, 0/1 for
+# folds) over the rows. Its Gram matrix G = Q0^T diag(c) Q0 and g = Q0^T diag(c) y come, for a
+# whole chunk of resamples, from ONE matrix product (counts @ [q_j q_k, q_j y]). With the Cholesky
+# factor G = L L^T, the columns of U = Q0 L^{-T} are orthonormal in the weighted metric and still
+# nested, so with w = L^{-1} g every capacity follows: coefficients (in q) of capacity c are
+# L^{-T}[:, :k] w[:k] (a cumulative sum), training RSS_c = RSS_top + sum_{k_c <= j < top} w_j^2
+# (a tail sum: no cancellation). A resample whose Gram matrix is badly conditioned is redone with
+# a QR of its own weighted rows (same outputs: R^{-1} and z = Qw^T sqrt(c) y). All reductions run
+# single-threaded on fixed shapes, with every resample at a fixed row of its chunk, so results are
+# bit-identical for any n_jobs and for any subset of resamples (a resumed checkpoint).
+
+_CHUNK_DOUBLES = 4_000_000  # bound on the doubles of one chunk's work arrays (about 32 MB)
+# resamples per chunk: the largest of these that fits (round numbers, so usual resample counts
+# fill their chunks); it depends on n only, never on which resamples are asked for
+_CHUNK_SIZES = (10, 20, 25, 50, 100, 200, 250, 500, 1000)
+_GRAM_CONDITION_LIMIT = 1e6  # above this (upper bound of cond(G_c)) a resample is refit by QR
+_RSS_CANCELLATION = 1e-4  # RSS below this share of y'Cy is recomputed from residuals
+
+
+def supports(problem: Problem) -> bool:
+    """True when the exact engine can serve ``problem``.
+
+    That is a :class:`~complexity.PolynomialLadder`, or a :class:`~complexity.FeatureLadder` with
+    the default least-squares estimator and a fixed order, without sample weights.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> from complexity.engine import Problem
+    >>> X = np.linspace(0, 1, 20)[:, None]
+    >>> ladder = cx.PolynomialLadder(range(0, 3))
+    >>> problem = Problem(ladder, ladder.build(X), X, X[:, 0], X, X[:, 0], cx.Bootstrap(5),
+    ...                   np.random.SeedSequence(0), X)
+    >>> supports(problem)
+    True
+    """
+    from ..ladders import FeatureLadder, PolynomialLadder
+
+    ladder = problem.ladder
+    if problem.sample_weight is not None or not getattr(ladder, "linear_least_squares", False):
+        return False
+    if isinstance(ladder, PolynomialLadder):
+        return True
+    return isinstance(ladder, FeatureLadder) and ladder.estimator is None and not ladder.ranked
+
+
+@dataclass(frozen=True)
+class _LadderDesign:
+    """How the ladder turns X into design columns (fixed from the full data)."""
+
+    kind: str  # "polynomial" or "features"
+    n_cols: tuple[int, ...]  # design columns used at each capacity
+    basis: PolynomialBasis | None = None
+    columns: tuple[int, ...] = ()  # features: predictor positions, in order of entry
+    center: NDArray[np.float64] | None = None
+    scale: NDArray[np.float64] | None = None
+
+    @property
+    def n_design(self) -> int:
+        return max(self.n_cols)
+
+    def __call__(self, X: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The design Z(X) with every column any capacity uses."""
+        if self.kind == "polynomial":
+            assert self.basis is not None
+            return self.basis.transform(X)[:, : self.n_design]
+        cols = np.asarray(self.columns, dtype=np.intp)
+        body = (X[:, cols] - self.center) / self.scale
+        return np.column_stack([np.ones(X.shape[0]), body])
+
+
+def _ladder_design(problem: Problem) -> _LadderDesign:
+    """Read the basis settings from the models the ladder built (what the generic path fits)."""
+    from ..ladders import PolynomialLadder
+
+    ladder = problem.ladder
+    design_X = np.asarray(problem.design_X, dtype=np.float64)
+    if design_X.ndim == 1:
+        design_X = design_X[:, None]
+    if isinstance(ladder, PolynomialLadder):
+        legendre = problem.models[0].steps[0][1]
+        degrees = tuple(int(d) for d in ladder.capacities)
+        basis = PolynomialBasis(max(degrees), legendre.domain).fit(design_X)
+        return _LadderDesign("polynomial", tuple(basis.n_columns(d) for d in degrees), basis=basis)
+    counts = tuple(int(k) for k in ladder.capacities)
+    order: list[int] = []
+    for model in problem.models:
+        if hasattr(model, "steps"):  # Pipeline([_FirstColumns(k, order), LinearRegression()])
+            given = model.steps[0][1].order
+            order = list(range(design_X.shape[1])) if given is None else [int(j) for j in given]
+            break
+    cols = tuple(order[: max(counts)])
+    sub = design_X[:, list(cols)] if cols else np.empty((design_X.shape[0], 0))
+    center = sub.mean(axis=0)
+    scale = np.sqrt(np.mean((sub - center) ** 2, axis=0))
+    scale = np.where(scale > 0, scale, 1.0)  # a constant column stays zero: caught as rank loss
+    return _LadderDesign(
+        "features", tuple(k + 1 for k in counts), columns=cols, center=center, scale=scale
+    )
+
+
+def _valid_prefix(r_diag: NDArray[np.float64], tol: float) -> int:
+    """Number of leading columns before the first pivot below ``tol * max(previous pivots)``."""
+    a = np.abs(r_diag)
+    ref = np.maximum.accumulate(a)
+    bad = np.flatnonzero(~(a > tol * np.maximum(ref, np.finfo(np.float64).tiny)))
+    return int(bad[0]) if bad.size else a.size
+
+
+def _rank_tol(n: int, P: int) -> float:
+    return 10.0 * max(n, P) * np.finfo(np.float64).eps
+
+
+@dataclass
+class _Reference:
+    """The reference factorisation and everything shared by all resamples."""
+
+    design: _LadderDesign
+    Q0: NDArray[np.float64]  # (n_ref, pv) orthonormal columns over the reference rows
+    R0inv: NDArray[np.float64]  # (pv, pv)
+    pv: int  # usable leading columns (numerical rank of the reference design)
+    n_cols: NDArray[np.intp]  # per capacity
+    chunk: int  # resamples per chunk (fixed from the shapes only)
+
+
+def _reference(problem: Problem, Z_ref: NDArray[np.float64], design: _LadderDesign) -> _Reference:
+    n, P = Z_ref.shape
+    (raw, tau), R = scipy.linalg.qr(Z_ref, mode="raw")
+    R = np.triu(R[:P, :P])
+    pv = _valid_prefix(np.diag(R), _rank_tol(n, P))
+    lapack = scipy.linalg.lapack
+    eye = np.zeros((n, P))
+    eye[np.arange(P), np.arange(P)] = 1.0
+    lwork = int(lapack.dormqr("L", "N", raw, tau, eye, lwork=-1)[1][0])
+    Q, _, _ = lapack.dormqr("L", "N", raw, tau, eye, lwork=max(lwork, 1))
+    Q0 = np.ascontiguousarray(np.asarray(Q)[:, :pv])
+    R0inv = scipy.linalg.solve_triangular(R[:pv, :pv], np.eye(pv)) if pv else np.zeros((0, 0))
+    # per chunk: counts (chunk x n) and residuals (about chunk x n/2 x C for out-of-bag rows)
+    fit_in = _CHUNK_DOUBLES // max(n * max(1, len(design.n_cols) // 2), 1)
+    chunk = max([size for size in _CHUNK_SIZES if size <= fit_in], default=_CHUNK_SIZES[0])
+    return _Reference(design, Q0, R0inv, pv, np.asarray(design.n_cols, dtype=np.intp), chunk)
+
+
+def _capacity_label(problem: Problem, c: int) -> str:
+    return f"{problem.ladder.capacity_name} {problem.ladder.capacities[c]!r}"
+
+
+def _rank_message(problem: Problem, c: int, where: str) -> str:
+    return (
+        f"{where} design is numerically rank deficient at {_capacity_label(problem, c)} (a column "
+        "is a linear combination of earlier ones); least squares is not unique there"
+    )
+
+
+# -------------------------------------------------------------------- batched nested solves
+
+
+def _from_gram(
+    G: NDArray[np.float64], g: NDArray[np.float64], pv: NDArray[np.intp]
+) -> tuple[NDArray, NDArray, NDArray, NDArray[np.bool_]]:
+    """Cholesky route for a stack of Gram matrices.
+
+    Returns ``(Tinv, w, cond_bound, ok)``: ``Tinv = L^{-T}`` (upper), ``w = L^{-1} g``, an upper
+    bound of cond(G_k) for every leading block k, and False where Cholesky failed.
+    """
+    S, P, _ = G.shape
+    G = G.copy()
+    g = g.copy()
+    for s in np.flatnonzero(pv < P):  # columns beyond a resample's usable prefix: identity
+        k = pv[s]
+        G[s, k:, :] = 0.0
+        G[s, :, k:] = 0.0
+        G[s, np.arange(k, P), np.arange(k, P)] = 1.0
+        g[s, k:] = 0.0
+    ok = np.ones(S, dtype=bool)
+    try:
+        L = np.linalg.cholesky(G)
+    except np.linalg.LinAlgError:
+        L = np.zeros_like(G)
+        for s in range(S):
+            try:
+                L[s] = np.linalg.cholesky(G[s])
+            except np.linalg.LinAlgError:
+                ok[s] = False
+                L[s] = np.eye(P)
+    Linv = np.linalg.inv(L)
+    w = np.einsum("sij,sj->si", Linv, g)
+    rows_L = np.cumsum(np.sum(L**2, axis=2), axis=1)
+    rows_Li = np.cumsum(np.sum(Linv**2, axis=2), axis=1)
+    cond_bound = rows_L * rows_Li  # (||L_k||_F ||L_k^{-1}||_F)^2 >= cond(G_k)
+    return np.transpose(Linv, (0, 2, 1)), w, cond_bound, ok
+
+
+def _from_rows(
+    A: NDArray[np.float64], v: NDArray[np.float64], pv: int
+) -> tuple[NDArray, NDArray, int]:
+    """QR route for one resample's weighted rows ``A`` (m, P) and response ``v`` (m,).
+
+    Returns ``(Tinv, w, pv)`` with ``Tinv = R^{-1}`` on the usable prefix (identity after it),
+    ``w = Qw^T v`` and the usable prefix after the rank check.
+    """
+    m, P = A.shape
+    Tinv = np.eye(P)
+    w = np.zeros(P)
+    if pv == 0 or m == 0:
+        return Tinv, w, 0
+    Qw, R = np.linalg.qr(A[:, :pv])
+    keep = min(pv, _valid_prefix(np.diag(R), _rank_tol(m, P)))
+    if keep:
+        Tinv[:keep, :keep] = scipy.linalg.solve_triangular(R[:keep, :keep], np.eye(keep))
+        w[:keep] = Qw[:, :keep].T @ v
+    return Tinv, w, keep
+
+
+def _coefficients(
+    Tinv: NDArray[np.float64], w: NDArray[np.float64], n_cols: NDArray[np.intp]
+) -> NDArray[np.float64]:
+    """Coefficients in the q basis for every capacity: ``Tinv[:, :k] @ w[:k]``, shape (S, P, C)."""
+    cum = np.cumsum(Tinv * w[:, None, :], axis=2)
+    # capacities past the usable columns are failures; clip so their (unused) index is valid
+    return cum[:, :, np.clip(n_cols, 1, Tinv.shape[2]) - 1]
+
+
+# -------------------------------------------------------------------- one chunk of resamples
+
+
+def _fail_capacities(
+    problem: Problem,
+    ref: _Reference,
+    distinct: int,
+    pv: int,
+    X_train_fn: Any,
+    where: str = "training",
+) -> dict[int, str]:
+    """Failures of one resample: too few distinct rows (ladder's own message) or rank loss."""
+    out: dict[int, str] = {}
+    for c, k in enumerate(ref.n_cols):
+        if k <= pv:
+            continue
+        message = None
+        if distinct < k:
+            message = problem.ladder.training_problem(c, X_train_fn())
+        out[c] = message or _rank_message(problem, c, where)
+    return out
+
+
+def _data_chunk(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> list[Outcome]:
+    """Outcomes for resamples of the observed data (bootstrap, folds, any splitter)."""
+    Q0, S, P = ref.Q0, ref.chunk, ref.pv
+    n = Q0.shape[0]
+    X, yc = problem.X, shared["yc"]
+    pos = np.array([r.index % S for r in chunk], dtype=np.intp)
+    counts = np.zeros((S, n))
+    for r, s in zip(chunk, pos):
+        counts[s] = np.bincount(r.train, minlength=n)
+    # the one big product: every Gram matrix, Q^T diag(c) y and y^T diag(c) y of the chunk
+    moments = _moments(counts, Q0, yc, shared)
+    iu = shared["iu"]
+    m = iu[0].size
+    G = np.zeros((S, P, P))
+    G[:, iu[0], iu[1]] = moments[:, :m]
+    G[:, iu[1], iu[0]] = moments[:, :m]
+    g = moments[:, m : m + P]
+    yy = moments[:, m + P]
+
+    # distinct training rows -> the capacities that can be fitted at all (a leading run)
+    if shared["n_unique"] == n:
+        distinct = np.count_nonzero(counts, axis=1)
+    else:
+        uid = shared["uid"]
+        distinct = np.zeros(S, dtype=np.intp)
+        for s in pos:
+            distinct[s] = np.unique(uid[counts[s] > 0]).size
+    fits = ref.n_cols[None, :] <= np.minimum(distinct, P)[:, None]
+    pv = np.max(np.where(fits, ref.n_cols[None, :], 0), axis=1)
+
+    Tinv, w, cond_bound, ok = _from_gram(G, g, pv)
+    in_prefix = np.arange(P)[None, :] < pv[:, None]
+    redo = ~ok | np.any(in_prefix & (cond_bound > _GRAM_CONDITION_LIMIT), axis=1)
+    for s in np.flatnonzero(redo[pos]):
+        s = pos[s]
+        rows = np.flatnonzero(counts[s])
+        root_c = np.sqrt(counts[s, rows])
+        Tinv[s], w[s], pv[s] = _from_rows(Q0[rows] * root_c[:, None], root_c * yc[rows], pv[s])
+
+    A = _coefficients(Tinv, w, ref.n_cols)  # (S, P, C)
+    # training RSS of the largest usable fit: y'Cy - |w|^2 when that keeps >= 12 digits, else
+    # (nearly exact fits, QR-refitted resamples) directly from its residuals
+    rss_top = yy - np.sum(w**2, axis=1)
+    direct = redo | (rss_top < _RSS_CANCELLATION * yy)
+    for s in np.flatnonzero(direct[pos]):
+        s = pos[s]
+        rows = np.flatnonzero(counts[s])
+        resid = yc[rows] - Q0[rows] @ (Tinv[s] @ w[s])
+        rss_top[s] = float(np.sum(counts[s, rows] * resid**2))
+    rss = rss_top[:, None] + _tail_sums(w)[:, np.minimum(ref.n_cols, P)]  # (S, C)
+    C = ref.n_cols.size
+    # residuals = [Q0, ybar - target] @ [[A], [1 ... 1]]: one product per resample gives
+    # prediction - target for every capacity at its test rows
+    Q0t = shared["Q0_target"]
+    A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
+    k_max = int(ref.n_cols.max())
+
+    out = []
+    for r, s in zip(chunk, pos):
+        failures = (
+            {}
+            if pv[s] >= k_max
+            else _fail_capacities(
+                problem, ref, int(distinct[s]), int(pv[s]), lambda r=r: X[r.train]
+            )
+        )
+        residuals = np.take(Q0t, r.test, axis=0) @ A1[s]
+        train_mse = rss[s] / r.train.size
+        if failures:
+            bad = _failed_mask(failures, C)
+            residuals[:, bad] = np.nan
+            train_mse[bad] = np.nan
+        out.append(Outcome(r.index, r.replicate, r.test, residuals, train_mse, failures))
+    return out
+
+
+def _products(Q0: NDArray, yc: NDArray, iu: tuple[NDArray, NDArray]) -> NDArray[np.float64]:
+    """Columns ``q_j q_k`` (j <= k), ``q_j y`` and ``y^2`` of the count-weighted moments."""
+    return np.column_stack([Q0[:, iu[0]] * Q0[:, iu[1]], Q0 * yc[:, None], yc**2])
+
+
+def _moments(
+    counts: NDArray[np.float64], Q0: NDArray, yc: NDArray, shared: dict[str, Any]
+) -> NDArray[np.float64]:
+    """``counts @ products``; for large n in fixed row blocks, so the products never fill memory."""
+    if shared["QQ"] is not None:
+        return counts @ shared["QQ"]
+    block = shared["row_block"]
+    total = None
+    for start in range(0, Q0.shape[0], block):
+        rows = slice(start, start + block)
+        part = counts[:, rows] @ _products(Q0[rows], yc[rows], shared["iu"])
+        total = part if total is None else total + part
+    return total
+
+
+def _tail_sums(w: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``out[s, j] = sum_{i >= j} w[s, i]^2`` with a trailing zero column (shape (S, P + 1))."""
+    S, P = w.shape
+    out = np.zeros((S, P + 1))
+    out[:, :P] = np.cumsum((w**2)[:, ::-1], axis=1)[:, ::-1]
+    return out
+
+
+def _failed_mask(failures: dict[int, str], C: int) -> NDArray[np.bool_]:
+    bad = np.zeros(C, dtype=bool)
+    bad[list(failures)] = True
+    return bad
+
+
+def _simulation_chunk(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> list[Outcome]:
+    """Outcomes for simulated training sets (fixed design: one basis, many y)."""
+    Q0, S, P = ref.Q0, ref.chunk, ref.pv
+    q_eval, target = shared["q_eval"], problem.target
+    C = ref.n_cols.size
+    out = []
+    if shared["fixed"]:
+        n = Q0.shape[0]
+        Y = np.zeros((n, S))
+        means = np.zeros(S)
+        pos = [r.index % S for r in chunk]
+        for r, s in zip(chunk, pos):
+            _, y = problem.training_set(r)[:2]
+            means[s] = float(np.mean(y))
+            Y[:, s] = y - means[s]
+        W = (Q0.T @ Y).T  # (S, P): G = I on the fixed design, so w = Q0^T y
+        k_top = shared["pv_fixed"]
+        W[:, k_top:] = 0.0
+        A = W[:, :, None] * (np.arange(P)[:, None] < ref.n_cols[None, :])[None]  # (S, P, C)
+        resid_top = Y.T - W @ Q0.T
+        rss = np.sum(resid_top**2, axis=1)[:, None] + _tail_sums(W)[:, np.minimum(ref.n_cols, P)]
+        failures = shared["fixed_failures"]
+        bad = _failed_mask(failures, C)
+        for r, s in zip(chunk, pos):
+            pred = q_eval @ A[s] + means[s]
+            residuals = pred - target[:, None]
+            residuals[:, bad] = np.nan
+            train_mse = np.where(bad, np.nan, rss[s] / n)
+            out.append(Outcome(r.index, r.replicate, r.test, residuals, train_mse, dict(failures)))
+        return out
+    design = ref.design
+    for r in chunk:
+        X_b, y_b = problem.training_set(r)[:2]
+        n_b = y_b.size
+        mean = float(np.mean(y_b))
+        yc = y_b - mean
+        distinct = int(np.unique(X_b, axis=0).shape[0])
+        fits = ref.n_cols[ref.n_cols <= min(distinct, P)]
+        pv = int(fits.max()) if fits.size else 0
+        q_b = design(X_b)[:, :P] @ ref.R0inv
+        Tinv, w, pv = _from_rows(q_b, yc, pv)
+        A = _coefficients(Tinv[None], w[None], ref.n_cols)[0]
+        resid_top = yc - q_b @ (Tinv @ w)
+        rss = float(resid_top @ resid_top) + _tail_sums(w[None])[0, np.minimum(ref.n_cols, P)]
+        failures = _fail_capacities(problem, ref, distinct, pv, lambda X_b=X_b: X_b)
+        bad = _failed_mask(failures, C)
+        residuals = q_eval @ A + mean - target[:, None]
+        residuals[:, bad] = np.nan
+        out.append(
+            Outcome(
+                r.index, r.replicate, r.test, residuals, np.where(bad, np.nan, rss / n_b), failures
+            )
+        )
+    return out
+
+
+def _row_ids(X: NDArray[np.float64]) -> NDArray[np.intp]:
+    """Label of each row's distinct value (rows equal across all columns share a label)."""
+    if X.shape[1] == 1:
+        return np.unique(X[:, 0], return_inverse=True)[1].ravel()
+    return np.unique(X, axis=0, return_inverse=True)[1].ravel()
+
+
+def _prepare(problem: Problem) -> tuple[_Reference, dict[str, Any]]:
+    """Reference factorisation and the arrays every chunk shares."""
+    design = _ladder_design(problem)
+    shared: dict[str, Any] = {}
+    if not problem.simulated:
+        assert problem.X is not None and problem.y is not None
+        X, y = problem.X, problem.y
+        ref = _reference(problem, design(X), design)
+        P = ref.pv
+        ybar = float(np.mean(y))
+        yc = y - ybar
+        iu = np.triu_indices(P)
+        Q0 = ref.Q0
+        n = Q0.shape[0]
+        n_products = iu[0].size + P + 1
+        shared.update(
+            yc=yc,
+            ybar=ybar,
+            iu=iu,
+            QQ=_products(Q0, yc, iu) if n_products * n <= _CHUNK_DOUBLES else None,
+            row_block=max(1, _CHUNK_DOUBLES // n_products),
+            Q0_target=np.column_stack([Q0, ybar - problem.target]),
+        )
+        uid = _row_ids(X)
+        shared.update(uid=uid, n_unique=int(uid.max()) + 1 if uid.size else 0)
+        return ref, shared
+    plan = problem.plan
+    fixed = plan.design is not None
+    Z_ref = design(plan.design if fixed else problem.design_X)
+    ref = _reference(problem, Z_ref, design)
+    shared["fixed"] = fixed
+    shared["q_eval"] = design(problem.X_eval)[:, : ref.pv] @ ref.R0inv
+    if fixed:
+        distinct = int(np.unique(plan.design, axis=0).shape[0])
+        fits = ref.n_cols[ref.n_cols <= min(distinct, ref.pv)]
+        pv = int(fits.max()) if fits.size else 0
+        shared["pv_fixed"] = pv
+        shared["fixed_failures"] = _fail_capacities(
+            problem, ref, distinct, pv, lambda: plan.design, where="fixed"
+        )
+    return ref, shared
+
+
+def _chunk_task(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> list[Outcome]:
+    # single-threaded BLAS: the order of every floating-point sum is then fixed by the shapes,
+    # so results do not depend on n_jobs, the backend or the other resamples of the chunk
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        if problem.simulated:
+            return _simulation_chunk(problem, ref, shared, chunk)
+        return _data_chunk(problem, ref, shared, chunk)
+
+
+@functools.lru_cache(maxsize=1)
+def _blas_controller() -> Any:
+    """One threadpoolctl controller per process (finding the libraries costs milliseconds)."""
+    from threadpoolctl import ThreadpoolController
+
+    return ThreadpoolController()
+
+
+def _group(resamples: Sequence[Any], size: int) -> list[list[Any]]:
+    """Consecutive resamples sharing ``index // size``: a chunk never depends on the others."""
+    groups: list[list[Any]] = []
+    seen: set[int] = set()
+    for r in resamples:
+        if groups and groups[-1][0].index // size == r.index // size and r.index not in seen:
+            groups[-1].append(r)
+        else:
+            groups.append([r])
+            seen = set()
+        seen.add(r.index)
+    return groups
+
+
+def run(
+    problem: Problem,
+    resamples: Sequence[Any],
+    *,
+    n_jobs: int | None = None,
+    on_done: Any = None,
+) -> Iterator[Outcome]:
+    """Yield the outcome of every resample, in order, for a least-squares ladder.
+
+    Every capacity of a chunk of resamples comes from one matrix product (the weighted Gram
+    matrices of a basis orthonormal over the data) and small per-resample factorisations; see
+    the module notes. Results are identical for any ``n_jobs`` and any joblib backend, and for
+    any subset of the resamples (so a resumed sweep equals an uninterrupted one).
+
+    Parameters
+    ----------
+    problem : complexity.engine.Problem
+        A problem this engine :func:`supports`.
+    resamples : sequence of complexity.plans.Resample
+    n_jobs : int, optional
+        Workers for :class:`joblib.Parallel` (chunks of resamples are the tasks).
+    on_done : callable, optional
+        Called with the number of fits finished after each chunk.
+
+    Yields
+    ------
+    complexity.engine.Outcome
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> from complexity.engine import Problem
+    >>> rng = np.random.default_rng(0)
+    >>> X = rng.uniform(0, 1, (30, 1)); y = np.sin(4 * X[:, 0]) + rng.normal(0, 0.1, 30)
+    >>> ladder, plan, root = cx.PolynomialLadder(range(0, 4)), cx.Bootstrap(3), np.random.SeedSequence(0)
+    >>> problem = Problem(ladder, ladder.build(X), X, y, X, y, plan, root, X)
+    >>> outcomes = list(run(problem, plan.resamples(30, root)))
+    >>> len(outcomes), outcomes[0].residuals.shape[1]
+    (3, 4)
+    """
+    from joblib import Parallel, delayed
+
+    if not supports(problem):
+        raise ValueError(
+            f"the exact engine cannot serve {problem.ladder!r} here (it needs a polynomial or "
+            "fixed-order least-squares feature ladder without sample weights)."
+        )
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        ref, shared = _prepare(problem)
+    groups = _group(list(resamples), ref.chunk)
+    if not groups:
+        return
+    C = ref.n_cols.size
+    if len(groups) == 1:
+        results: Any = (_chunk_task(problem, ref, shared, groups[0]),)
+    else:
+        tasks = (delayed(_chunk_task)(problem, ref, shared, grp) for grp in groups)
+        results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
+    for outcomes in results:
+        yield from outcomes
+        if on_done is not None:
+            on_done(len(outcomes) * C)
+
+
+# -------------------------------------------------------------------- the fit on all data
+
+
+def _term_names(terms: list[tuple[int, ...]], names: list[str]) -> list[str]:
+    out = []
+    for exps in terms:
+        parts = [names[j] if e == 1 else f"{names[j]}^{e}" for j, e in enumerate(exps) if e]
+        out.append("*".join(parts) if parts else "1")
+    return out
+
+
+def _feature_names(problem: Problem, p: int) -> list[str]:
+    names = getattr(problem, "feature_names", None)
+    if names and len(names) == p:
+        return [str(v) for v in names]
+    return ["x"] if p == 1 else [f"x{j}" for j in range(p)]
+
+
+def _coefficient_tables(
+    problem: Problem, design: _LadderDesign, fit: NestedFit, failed: set[int]
+) -> dict[Any, Any] | None:
+    import pandas as pd
+
+    P = design.n_design
+    if P > 300:  # exact conversion of hundreds of product terms is slow and not informative
+        return None
+    p = problem.X.shape[1]
+    names = _feature_names(problem, p)
+    if design.kind == "polynomial":
+        basis = design.basis
+        assert basis is not None
+        M = basis.monomial_matrix(P)
+        labels = _term_names(basis.terms_[:P], names)
+    else:
+        M = np.zeros((P, P))
+        M[0, 0] = 1.0
+        M[0, 1:] = -design.center / design.scale
+        M[np.arange(1, P), np.arange(1, P)] = 1.0 / design.scale
+        labels = ["intercept"] + [names[j] for j in design.columns]
+    tables: dict[Any, Any] = {}
+    for c, cap in enumerate(problem.ladder.capacities):
+        if c in failed:
+            continue
+        k = fit.n_columns[c]
+        coef = fit.coef[c, :k]
+        if design.kind == "polynomial":
+            estimate = np.array(list(basis.monomial_coefficients(coef).values()))
+        else:
+            estimate = M[:k, :k] @ coef
+        sigma2 = float(fit.sigma2[c])
+        MF = M[:k, :k] @ fit.cov_factor[c, :k, :k]
+        se = np.sqrt(sigma2 * np.sum(MF**2, axis=1)) if np.isfinite(sigma2) else np.full(k, np.nan)
+        table = pd.DataFrame(
+            {"estimate": estimate, "std_error": se}, index=pd.Index(labels[:k], name="term")
+        )
+        if not np.isfinite(sigma2):
+            table.attrs["note"] = (
+                "no residual degrees of freedom (as many coefficients as observations): "
+                "standard errors are undefined"
+            )
+        tables[cap] = table
+    return tables
+
+
+def fit_full(problem: Problem) -> FullFit:
+    """Fit every capacity once on all the data, from one QR; add criteria and coefficients.
+
+    Parameters
+    ----------
+    problem : complexity.engine.Problem
+        A data problem (not a Simulation) this engine :func:`supports`.
+
+    Returns
+    -------
+    complexity.engine.FullFit
+        ``fitted`` (n, C), ``train_mse`` (C,), ``failures`` (capacities whose full-data design is
+        numerically rank deficient: a failure, never a minimum-norm fit), ``criteria``
+        (:func:`complexity.criteria.criteria_table` columns ``loocv, gcv, aic, aicc, bic, cp,
+        fixed_design_variance``), ``diagnostics`` (``condition_number`` of each design,
+        ``max_abs_coefficient`` on the stable basis, ``n_params``) and ``coefficients`` (per
+        capacity, in the user's units: power basis for polynomials).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> from complexity.engine import Problem
+    >>> X = np.arange(5.0)[:, None]; y = np.array([1.0, 3, 2, 5, 4])
+    >>> ladder = cx.PolynomialLadder(range(0, 3))
+    >>> problem = Problem(ladder, ladder.build(X), X, y, X, y, cx.Bootstrap(5),
+    ...                   np.random.SeedSequence(0), X)
+    >>> full = fit_full(problem)
+    >>> full.criteria.loc[1, ["gcv", "aic"]].round(6).tolist()
+    [2.0, 16.546865]
+    >>> full.coefficients[1]["estimate"].round(6).tolist()
+    [1.4, 0.8]
+    """
+    if problem.X is None or problem.y is None:
+        raise ValueError("fit_full needs observed data (problem.X and problem.y); got None.")
+    # tiny BLAS calls on several threads mostly wait for each other: one thread is faster here
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        return _fit_full(problem)
+
+
+def _fit_full(problem: Problem) -> FullFit:
+    import warnings
+
+    import pandas as pd
+
+    from ..criteria import criteria_table
+
+    design = _ladder_design(problem)
+    X, y = problem.X, problem.y
+    n = X.shape[0]
+    fit = nested_least_squares(design(X), y, n_columns_per_capacity=list(design.n_cols))
+    caps = list(problem.ladder.capacities)
+    C = len(caps)
+    failures = {
+        c: _rank_message(problem, c, "full-data") for c in range(C) if fit.rank_deficient[c]
+    }
+    ok = np.array([c not in failures for c in range(C)])
+    fitted = fit.fitted.T.copy()
+    fitted[:, ~ok] = np.nan
+    train_mse = np.where(ok, fit.rss / n, np.nan)
+
+    columns = ["loocv", "gcv", "aic", "aicc", "bic", "cp", "fixed_design_variance"]
+    criteria = pd.DataFrame(
+        np.nan, index=pd.Index(caps, name=problem.ladder.capacity_name), columns=columns
+    )
+    if ok.any():
+        args = (fit.residuals[ok], fit.leverage[ok], fit.rank[ok])
+        try:
+            table = criteria_table(*args, rss=fit.rss[ok])
+        except ValueError as exc:  # no model leaves a usable noise estimate for Cp
+            table = criteria_table(*args, rss=fit.rss[ok], sigma2=1.0)
+            table[["cp", "fixed_design_variance"]] = np.nan
+            from ..sweep import CapacityWarning
+
+            warnings.warn(
+                f"Mallows' Cp and the fixed-design variance are left empty: {exc}",
+                CapacityWarning,
+                stacklevel=3,
+            )
+        criteria.loc[np.asarray(caps, dtype=object)[ok], columns] = table[columns].to_numpy()
+
+    diagnostics = pd.DataFrame(
+        {
+            "condition_number": fit.condition,
+            "max_abs_coefficient": np.where(ok, np.max(np.abs(fit.coef), axis=1), np.nan),
+            "n_params": fit.rank,
+        },
+        index=pd.Index(caps, name=problem.ladder.capacity_name),
+    )
+    distinct = int(np.unique(X, axis=0).shape[0])
+    from ..ladders import PolynomialLadder
+
+    if not isinstance(problem.ladder, PolynomialLadder):  # PolynomialLadder says it up front
+        full_caps = [caps[c] for c in range(C) if design.n_cols[c] >= distinct]
+        if full_caps:
+            from ..sweep import CapacityWarning
+
+            warnings.warn(
+                f"{problem.ladder.capacity_name} {full_caps} use(s) as many coefficients as there "
+                f"are distinct rows ({distinct}): the fit interpolates and its training error "
+                "says nothing.",
+                CapacityWarning,
+                stacklevel=3,
+            )
+    return FullFit(
+        fitted=fitted,
+        train_mse=train_mse,
+        failures=failures,
+        criteria=criteria,
+        diagnostics=diagnostics,
+        coefficients=_coefficient_tables(problem, design, fit, set(failures)),
+    )
