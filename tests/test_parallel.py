@@ -21,9 +21,9 @@ import complexity as cx
 X, Y = cx.datasets.pressure_sensor()
 
 CASES = {
-    # least-squares ladder on the exact engine; 520 resamples make several chunks (tasks) of
-    # its batched solves
-    "polynomial-exact": lambda: (cx.PolynomialLadder(range(0, 5)), cx.Bootstrap(520), {}),
+    # least-squares ladder on the exact engine; 2,000 resamples make several chunks (tasks) of
+    # its batched solves (at most 1,000 resamples per chunk)
+    "polynomial-exact": lambda: (cx.PolynomialLadder(range(0, 5)), cx.Bootstrap(2000), {}),
     # the same ladder on the generic engine (one clone-and-fit per resample and capacity)
     "polynomial-generic": lambda: (
         cx.PolynomialLadder(range(0, 5)),

@@ -128,12 +128,13 @@ def _chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
     return [_one_resample(problem, r, keys) for r in chunk]
 
 
-def _chunks(resamples: Sequence[Resample], n_jobs: int | None) -> list[Sequence[Resample]]:
+def _chunks(n_resamples: int, n_jobs: int | None) -> list[tuple[int, int]]:
+    """``(start, stop)`` positions of each chunk; the resamples are taken only when it runs."""
     from joblib import effective_n_jobs
 
     workers = max(1, effective_n_jobs(n_jobs))
-    size = max(1, min(32, -(-len(resamples) // (4 * workers))))
-    return [resamples[i : i + size] for i in range(0, len(resamples), size)]
+    size = max(1, min(32, -(-n_resamples // (4 * workers))))
+    return [(i, min(i + size, n_resamples)) for i in range(0, n_resamples, size)]
 
 
 def run(
@@ -154,12 +155,13 @@ def run(
     on_done : callable, optional
         Called with the number of fits finished, after each chunk (for progress display).
     """
-    chunks = _chunks(resamples, n_jobs)
+    chunks = _chunks(len(resamples), n_jobs)
     if not chunks:
         return
-    tasks = (delayed(_chunk)(problem, ch) for ch in chunks)
+    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
+    tasks = (delayed(_chunk)(problem, resamples[a:b]) for a, b in chunks)
     if len(chunks) == 1:
-        results: Any = (_chunk(problem, chunks[0]),)
+        results: Any = (_chunk(problem, resamples[: len(resamples)]),)
     else:
         results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
     for outcomes in results:
