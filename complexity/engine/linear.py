@@ -21,6 +21,7 @@ pivoting (pivoting would reorder the columns and break the nesting), gives every
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 import numbers
 from collections.abc import Iterator, Sequence
@@ -1132,18 +1133,24 @@ def _blas_controller() -> Any:
     return ThreadpoolController()
 
 
-def _group(resamples: Sequence[Any], size: int) -> list[list[Any]]:
-    """Consecutive resamples sharing ``index // size``: a chunk never depends on the others."""
-    groups: list[list[Any]] = []
+def _group(resamples: Sequence[Any], size: int) -> Iterator[list[Any]]:
+    """Consecutive resamples sharing ``index // size``: a chunk never depends on the others.
+
+    A generator, so that only the chunks joblib has dispatched exist at any time (a lazy plan
+    then never holds every resample's index arrays).
+    """
+    group: list[Any] = []
     seen: set[int] = set()
     for r in resamples:
-        if groups and groups[-1][0].index // size == r.index // size and r.index not in seen:
-            groups[-1].append(r)
+        if group and group[0].index // size == r.index // size and r.index not in seen:
+            group.append(r)
         else:
-            groups.append([r])
-            seen = set()
+            if group:
+                yield group
+            group, seen = [r], set()
         seen.add(r.index)
-    return groups
+    if group:
+        yield group
 
 
 def run(
@@ -1196,14 +1203,16 @@ def run(
         )
     with _blas_controller().limit(limits=1, user_api="blas"):
         ref, shared = _prepare(problem)
-    groups = _group(list(resamples), ref.chunk)
-    if not groups:
+    groups = _group(resamples, ref.chunk)
+    first, second = next(groups, None), next(groups, None)
+    if first is None:
         return
     C = ref.n_cols.size
-    if len(groups) == 1:
-        results: Any = (_chunk_task(problem, ref, shared, groups[0]),)
+    if second is None:
+        results: Any = (_chunk_task(problem, ref, shared, first),)
     else:
-        tasks = (delayed(_chunk_task)(problem, ref, shared, grp) for grp in groups)
+        every = itertools.chain((first, second), groups)
+        tasks = (delayed(_chunk_task)(problem, ref, shared, grp) for grp in every)
         results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
     for outcomes in results:
         yield from outcomes
