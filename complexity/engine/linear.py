@@ -952,6 +952,8 @@ def _data_chunk(
     Q0t = shared["Q0_target"]
     A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
     k_max = int(ref.n_cols.max())
+    # small problems: every row at once (one stacked product), then pick each test set
+    every_row = np.matmul(Q0t[None], A1) if n * P * C <= 200_000 else None
 
     out = []
     for r, s in zip(chunk, pos):
@@ -962,7 +964,10 @@ def _data_chunk(
                 problem, ref, int(distinct[s]), int(pv[s]), lambda r=r: X[r.train]
             )
         )
-        residuals = np.take(Q0t, r.test, axis=0) @ A1[s]
+        if every_row is not None:
+            residuals = every_row[s, r.test]
+        else:
+            residuals = np.take(Q0t, r.test, axis=0) @ A1[s]
         train_mse = rss[s] / r.train.size
         if failures:
             bad = _failed_mask(failures, C)
