@@ -82,6 +82,23 @@ class PointAccumulator:
     def add(self, outcome: Outcome) -> None:
         """Fold one resample's outcome into the running statistics."""
         idx, res = outcome.test, outcome.residuals
+        if outcome.failures:
+            self._add_with_failures(outcome)
+        else:
+            # Welford's update; every capacity was fitted, so every point counts once more.
+            cnt = self.count[idx] + 1
+            old = self.mean[idx]
+            delta = res - old
+            new = old + delta / cnt
+            self.m2[idx] += delta * (res - new)
+            self.mean[idx] = new
+            self.count[idx] = cnt
+            sq = res * res
+            n_ok = np.full(res.shape[1], res.shape[0], dtype=np.int64)
+            self._add_sums(outcome, sq, n_ok)
+
+    def _add_with_failures(self, outcome: Outcome) -> None:
+        idx, res = outcome.test, outcome.residuals
         ok = np.isfinite(res)  # failed capacities are whole NaN columns
         # Welford's update, applied only where the fit succeeded.
         cnt = self.count[idx] + ok
@@ -91,13 +108,15 @@ class PointAccumulator:
         self.m2[idx] += np.where(ok, delta * (res - new), 0.0)
         self.mean[idx] = new
         self.count[idx] = cnt
-
         sq = np.where(ok, res, 0.0) ** 2
-        n_ok = ok.sum(axis=0)
-        self.resample_loss[outcome.index] = sq.sum(axis=0)
+        self._add_sums(outcome, sq, ok.sum(axis=0))
+
+    def _add_sums(self, outcome: Outcome, sq: NDArray[np.float64], n_ok: NDArray[np.int64]) -> None:
+        loss = sq.sum(axis=0)
+        self.resample_loss[outcome.index] = loss
         self.resample_n[outcome.index] = n_ok
-        self.replicate_loss[outcome.replicate] += sq.sum(axis=0)
-        self.replicate_loss2[outcome.replicate] += (sq**2).sum(axis=0)
+        self.replicate_loss[outcome.replicate] += loss
+        self.replicate_loss2[outcome.replicate] += np.einsum("ij,ij->j", sq, sq)
         self.replicate_n[outcome.replicate] += n_ok
 
         fit = np.isfinite(outcome.train_mse)
@@ -107,5 +126,5 @@ class PointAccumulator:
             self.failures.count[c] += 1
             self.failures.first.setdefault(c, message)
         if self.residuals is not None:
-            self.residuals[outcome.index, idx] = res
+            self.residuals[outcome.index, outcome.test] = outcome.residuals
         self.n_added += 1

@@ -164,13 +164,19 @@ def stability(
     >>> stability(err, np.zeros_like(err), (0, 1, 2), "min").tolist()
     [0.0, 0.5, 0.5]
     """
-    wins = np.zeros(len(capacities))
-    used = 0
-    for e, s in zip(errors, se):
-        if not np.isfinite(e).any():
-            continue
-        pos = choose_one_se(e, s) if rule == "one-se" else choose_min(e)
-        wins[pos] += 1
-        used += 1
+    errors = np.asarray(errors, dtype=np.float64)
+    se = np.asarray(se, dtype=np.float64)
+    rows = np.isfinite(errors).any(axis=1)
+    e = np.where(np.isfinite(errors[rows]), errors[rows], np.inf)
+    best = np.argmin(e, axis=1)  # first minimum: the simplest on ties, as choose_min
+    if rule == "one-se":
+        at_best = np.take_along_axis(se[rows], best[:, None], axis=1)
+        margin = np.where(np.isfinite(at_best), at_best, 0.0)
+        threshold = np.take_along_axis(e, best[:, None], axis=1) + margin
+        pos = np.argmax(e <= threshold, axis=1)  # first capacity within the threshold
+    else:
+        pos = best
+    wins = np.bincount(pos, minlength=len(capacities)).astype(np.float64)
+    used = int(rows.sum())
     share = wins / used if used else np.full(len(capacities), np.nan)
     return pd.Series(share, index=capacity_index(capacities), name="share_chosen")

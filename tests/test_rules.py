@@ -93,3 +93,30 @@ def test_stability_shares():
     assert s.sum() == pytest.approx(1.0)
     s1 = stability(err, np.full_like(err, 1.0), (0, 1, 2), "one-se")
     assert s1.tolist() == [0.25, 0.75, 0.0]
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.integers(1, 8),
+    st.integers(1, 6),
+    st.integers(0, 2**32 - 1),
+    st.sampled_from(["min", "one-se"]),
+)
+def test_stability_equals_rule_applied_row_by_row(n_rows, n_caps, seed, rule):
+    # law: stability counts, per replicate, the capacity the rule itself would choose
+    rng = np.random.default_rng(seed)
+    err = np.round(rng.uniform(0, 3, (n_rows, n_caps)), 1)  # rounding makes ties likely
+    se = rng.uniform(0, 0.5, (n_rows, n_caps))
+    err[rng.random((n_rows, n_caps)) < 0.1] = np.nan
+    caps = tuple(range(n_caps))
+    expected = np.zeros(n_caps)
+    used = 0
+    for e, s in zip(err, se):
+        if np.isfinite(e).any():
+            expected[choose_one_se(e, s) if rule == "one-se" else choose_min(e)] += 1
+            used += 1
+    got = stability(err, se, caps, rule).to_numpy()
+    if used:
+        np.testing.assert_array_equal(got, expected / used)
+    else:
+        assert np.isnan(got).all()
