@@ -57,7 +57,23 @@ _FAILURE_KEYS = ("failures__capacity", "failures__message")
 
 
 class CheckpointMismatchError(ValueError):
-    """A checkpoint folder holds work from a different sweep (data, ladder, plan, seed, ...)."""
+    """A checkpoint folder holds work from a different sweep (data, ladder, plan, seed, ...).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> import complexity as cx
+    >>> X, y = cx.datasets.pressure_sensor()
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     _ = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5),
+    ...                  random_state=0, checkpoint=folder)
+    ...     try:
+    ...         cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5),
+    ...                  random_state=1, checkpoint=folder)
+    ...     except CheckpointMismatchError as exc:
+    ...         print("seed: stored" in str(exc))
+    True
+    """
 
 
 # --------------------------------------------------------------------------- path and seed
