@@ -174,7 +174,9 @@ def check_sample_weight(sample_weight: Any, n: int) -> NDArray[np.float64] | Non
         )
     if np.any(w < 0):
         first = int(np.flatnonzero(w < 0)[0])
-        raise ValueError(f"sample_weight must be >= 0; got {float(w[first])!r} at position {first}.")
+        raise ValueError(
+            f"sample_weight must be >= 0; got {float(w[first])!r} at position {first}."
+        )
     if not np.any(w > 0):
         raise ValueError(
             "sample_weight is zero everywhere; at least one row needs a positive weight."
