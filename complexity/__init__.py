@@ -17,6 +17,7 @@ True
 from importlib.metadata import PackageNotFoundError, version
 
 from . import datasets
+from .checkpoint import CheckpointMismatchError
 from .ladders import FeatureLadder, Ladder, ParamLadder, PolynomialLadder
 from .noise import NoiseEstimate, estimate_noise
 from .plans import Bootstrap, CrossValidation, Plan, Simulation
@@ -32,6 +33,7 @@ except PackageNotFoundError:  # running from a source tree without installing
 __all__ = [
     "Bootstrap",
     "CapacityWarning",
+    "CheckpointMismatchError",
     "ComplexitySelector",
     "CrossValidation",
     "ExtrapolationWarning",

@@ -124,6 +124,11 @@ class _LazyResamples(Sequence):
     def __len__(self) -> int:
         return self._count
 
+    @property
+    def n_replicates(self) -> int:
+        """Every lazily drawn resample is its own replicate (bootstrap)."""
+        return self._count
+
     def __getitem__(self, i: Any) -> Any:
         if isinstance(i, slice):
             return [self._make(b) for b in range(*i.indices(self._count))]
