@@ -40,7 +40,7 @@ class PointAccumulator:
 
     Attributes
     ----------
-    count : ndarray of int, shape (n_points, n_capacities)
+    count : ndarray of float (whole numbers), shape (n_points, n_capacities)
         How many resamples scored each point (per capacity; failed fits do not count).
     mean : ndarray of shape (n_points, n_capacities)
         Mean residual per point.
@@ -63,7 +63,7 @@ class PointAccumulator:
         keep_predictions: bool = False,
     ) -> None:
         shape = (n_points, n_capacities)
-        self.count = np.zeros(shape, dtype=np.int64)
+        self.count = np.zeros(shape)  # float64: exact for any realistic count, no casts
         self.mean = np.zeros(shape)
         self.m2 = np.zeros(shape)
         self.resample_loss = np.zeros((n_resamples, n_capacities))
@@ -86,12 +86,16 @@ class PointAccumulator:
             self._add_with_failures(outcome)
         else:
             # Welford's update; every capacity was fitted, so every point counts once more.
-            cnt = self.count[idx] + 1
-            old = self.mean[idx]
+            cnt = np.take(self.count, idx, axis=0)
+            cnt += 1.0
+            old = np.take(self.mean, idx, axis=0)
             delta = res - old
-            new = old + delta / cnt
-            self.m2[idx] += delta * (res - new)
+            new = delta / cnt
+            new += old
+            m2 = np.take(self.m2, idx, axis=0)
+            m2 += delta * (res - new)
             self.mean[idx] = new
+            self.m2[idx] = m2
             self.count[idx] = cnt
             sq = res * res
             n_ok = np.full(res.shape[1], res.shape[0], dtype=np.int64)

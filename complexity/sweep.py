@@ -116,8 +116,11 @@ def _guard_overflow(outcome: Outcome, n_points: int) -> Outcome:
     """
     res = outcome.residuals
     with np.errstate(over="ignore", invalid="ignore"):
-        big = np.max(np.where(np.isfinite(res), np.abs(res), 0.0), axis=0, initial=0.0)
+        # failed capacities are NaN columns (max -> NaN): they are already recorded as failures
+        big = np.max(np.abs(res), axis=0, initial=0.0)
         bad = ~np.isfinite(big**4 * float(max(n_points, 1)))
+    if outcome.failures:
+        bad[list(outcome.failures)] = False
     if not bad.any():
         return outcome
     res, train_mse, failures = res.copy(), outcome.train_mse.copy(), dict(outcome.failures)
@@ -126,7 +129,9 @@ def _guard_overflow(outcome: Outcome, n_points: int) -> Outcome:
         train_mse[c] = np.nan
         failures.setdefault(
             int(c),
-            f"predictions so far from the targets (|prediction - target| up to {big[c]:.3g}) "
+            "the fit returned NaN predictions"
+            if np.isnan(big[c])
+            else f"predictions so far from the targets (|prediction - target| up to {big[c]:.3g}) "
             "that error sums overflow float64",
         )
     return dataclasses.replace(outcome, residuals=res, train_mse=train_mse, failures=failures)
