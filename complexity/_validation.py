@@ -23,6 +23,17 @@ def _short_repr(value: Any, limit: int = 80) -> str:
     return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
+def repr_from_description(obj: Any) -> str:
+    """``ClassName(key=value, ...)`` from ``obj.describe()``, leaving out its ``kind`` entry.
+
+    Ladders and plans describe themselves as JSON-friendly dicts (stored with every result); their
+    repr is built from the same dict so the two never disagree.
+    """
+    desc = obj.describe()
+    args = ", ".join(f"{k}={v!r}" for k, v in desc.items() if k != "kind")
+    return f"{type(obj).__name__}({args})"
+
+
 def check_int(name: str, value: Any, *, minimum: int | None = None) -> int:
     """Return ``value`` as an int, or raise naming ``name``.
 

@@ -20,7 +20,7 @@ from sklearn.dummy import DummyRegressor
 from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
-from ._validation import _short_repr, check_option
+from ._validation import _short_repr, check_option, repr_from_description
 
 __all__ = ["FeatureLadder", "Ladder", "ParamLadder", "PolynomialLadder"]
 
@@ -65,9 +65,7 @@ class Ladder:
         raise NotImplementedError
 
     def __repr__(self) -> str:
-        desc = self.describe()
-        args = ", ".join(f"{k}={v!r}" for k, v in desc.items() if k != "kind")
-        return f"{type(self).__name__}({args})"
+        return repr_from_description(self)
 
 
 def _check_capacity_list(name: str, values: Any) -> list[Any]:

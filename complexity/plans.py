@@ -18,7 +18,13 @@ import numpy as np
 from numpy.typing import NDArray
 from sklearn.model_selection import KFold
 
-from ._validation import _short_repr, as_seed_sequence, check_float, check_int
+from ._validation import (
+    _short_repr,
+    as_seed_sequence,
+    check_float,
+    check_int,
+    repr_from_description,
+)
 
 __all__ = ["Bootstrap", "CrossValidation", "Plan", "Resample", "Simulation", "as_plan"]
 
@@ -96,9 +102,7 @@ class Plan:
         raise NotImplementedError
 
     def __repr__(self) -> str:
-        desc = self.describe()
-        args = ", ".join(f"{k}={v!r}" for k, v in desc.items() if k != "kind")
-        return f"{type(self).__name__}({args})"
+        return repr_from_description(self)
 
 
 def _bootstrap_resample(n: int, root: np.random.SeedSequence, b: int) -> Resample:

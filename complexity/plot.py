@@ -473,6 +473,17 @@ def has_diagnostics(result: SweepResult) -> bool:
     return cond is not None or coef is not None
 
 
+def _diagnostic_line(
+    ax: Any, x: Any, values: Any, marker: str, colour: str, label: str, gid: str, ylabel: str
+) -> Any:
+    """One diagnostic curve on ``ax`` (log scale when it spans more than 30x); returns the line."""
+    (line,) = ax.plot(x, values, marker=marker, color=COLOURS[colour], label=label, gid=gid)
+    if _spread(values) > 30:
+        ax.set_yscale("log")
+    ax.set_ylabel(ylabel)
+    return line
+
+
 def _spread(values: np.ndarray) -> float:
     """max/min of the finite values when all are positive, else 1 (no log axis)."""
     finite = values[np.isfinite(values)]
@@ -494,37 +505,35 @@ def _draw_conditioning(result: SweepResult, ax: Axes, *, below: bool = False) ->
     handles = []
     first = ax
     if cond is not None:
-        values = _column(result, cond)
-        (line,) = ax.plot(
-            x,
-            values,
-            marker="s",
-            color=COLOURS["train"],
-            label="design condition number",
-            gid="condition",
+        handles.append(
+            _diagnostic_line(
+                ax,
+                x,
+                _column(result, cond),
+                "s",
+                "train",
+                "design condition number",
+                "condition",
+                f"condition number ({cond})",
+            )
         )
-        handles.append(line)
-        if _spread(values) > 30:
-            ax.set_yscale("log")
-        ax.set_ylabel(f"condition number ({cond})")
     if coef is not None:
         target = ax.twinx() if cond is not None else ax
         if target is not ax:
             target.spines["right"].set_visible(True)
             target.grid(False)
-        values = _column(result, coef)
-        (line,) = target.plot(
-            x,
-            values,
-            marker="o",
-            color=COLOURS["bias"],
-            label="coefficient size",
-            gid="coefficient-size",
+        handles.append(
+            _diagnostic_line(
+                target,
+                x,
+                _column(result, coef),
+                "o",
+                "bias",
+                "coefficient size",
+                "coefficient-size",
+                f"coefficient size ({coef})",
+            )
         )
-        handles.append(line)
-        if _spread(values) > 30:
-            target.set_yscale("log")
-        target.set_ylabel(f"coefficient size ({coef})")
     _mark_recommended(first, result, x[pos])
     handles.append(next(a for a in first.get_lines() if a.get_gid() == "recommended"))
     _capacity_axis(first, result, x, labels)
