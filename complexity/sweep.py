@@ -259,18 +259,11 @@ def sweep(
         data = check_X_y(X, y, groups=groups)
         Xd, yd, names = data.X, data.y, data.feature_names
         n_obs = Xd.shape[0]
-        check_sample_weight(sample_weight, n_obs)  # clear messages before any use of the weights
+        w = check_sample_weight(sample_weight, n_obs)  # a validated copy, or None
         notes += ladder.check_data(Xd, names)
         models = ladder.build(Xd, names)
         X_eval, target, design = Xd, yd, Xd
-        w = None
-        if sample_weight is not None:
-            w = np.array(sample_weight, dtype=np.float64, copy=True)
-            if w.shape != (n_obs,) or not np.all(np.isfinite(w)) or np.any(w < 0):
-                raise ValueError(
-                    f"sample_weight must hold one finite, non-negative weight per row ({n_obs}); "
-                    f"got shape {w.shape}."
-                )
+        if w is not None:
             _check_weight_support(models)
 
     problem = Problem(
