@@ -288,7 +288,9 @@ def sweep(
         X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups
     )
     # a lazy plan knows its replicate count; drawing every resample to count them costs a pass
-    n_replicates = getattr(resamples, "n_replicates", None) or max(r.replicate for r in resamples) + 1
+    n_replicates = (
+        getattr(resamples, "n_replicates", None) or max(r.replicate for r in resamples) + 1
+    )
     inclusion_of = getattr(ladder, "inclusion", None)  # feature ladders: who was among the first k
     inclusion = inclusion_of(problem, resamples, names) if callable(inclusion_of) else None
     C = len(ladder.capacities)
