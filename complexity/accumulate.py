@@ -1,13 +1,21 @@
 """Streaming accumulators: per evaluation point and capacity, running count, mean and spread.
 
-Outcomes are folded in one at a time (Welford's update, vectorised over points and capacities), so
-memory is O(points x capacities + resamples x capacities) however many resamples a sweep runs. The
-values accumulated are residuals ``prediction - target``; working with residuals instead of raw
+Outcomes are folded in one at a time (Welford's update, vectorised over points and capacities), or a
+block of consecutive resamples at a time (:meth:`PointAccumulator.add_block`: the block's own count,
+mean and sum of squared deviations per point, two-pass, merged into the running values with the
+pairwise formula of Chan, Golub & LeVeque 1983). Memory is O(points x capacities + resamples x
+capacities) however many resamples a sweep runs, plus one block of at most 512 KB. The values
+accumulated are residuals ``prediction - target``; working with residuals instead of raw
 predictions keeps the sums well scaled when y is large and nearly constant.
+
+Block boundaries are a pure function of the resample index and the problem size
+(:func:`block_size`), never of how the work was spread over processes or read back from a
+checkpoint, so the accumulated numbers are identical for any ``n_jobs`` and for a resumed sweep.
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -15,7 +23,29 @@ from numpy.typing import NDArray
 
 from .engine import Outcome
 
-__all__ = ["PointAccumulator"]
+__all__ = ["PointAccumulator", "block_size"]
+
+# One block's dense (resamples, points, capacities) buffer stays cache-sized (512 KB): measured
+# (benchmarks/bench_exact.py), the dense passes beat per-resample gathers and scatters only while
+# the buffer is small, so problems with more than 65,536 residuals per resample use blocks of one
+# (plain Welford updates).
+_BLOCK_DOUBLES = 65_536
+_MAX_BLOCK = 256  # more resamples per block saves nothing measurable
+
+
+def block_size(n_points: int, n_capacities: int) -> int:
+    """Resamples per accumulation block: block j holds resamples ``[j * K, (j + 1) * K)``.
+
+    A pure function of the problem size, so the blocks (and every sum formed over them) are the
+    same however the resamples were computed.
+
+    Examples
+    --------
+    >>> block_size(20_000, 16), block_size(40, 11)
+    (1, 148)
+    """
+    per_resample = max(int(n_points) * int(n_capacities), 1)
+    return max(1, min(_MAX_BLOCK, _BLOCK_DOUBLES // per_resample))
 
 
 @dataclass
@@ -100,6 +130,95 @@ class PointAccumulator:
             sq = res * res
             n_ok = np.full(res.shape[1], res.shape[0], dtype=np.int64)
             self._add_sums(outcome, sq, n_ok)
+
+    def add_block(self, outcomes: Sequence[Outcome]) -> None:
+        """Fold a block of resamples' outcomes into the running statistics at once.
+
+        The block's per-point count, mean and sum of squared deviations from its own mean are
+        computed on a dense (resamples, points, capacities) buffer (two passes: mean first, then
+        deviations; a block of one is a plain Welford update, :meth:`add`), then merged with the running values by Chan et al.'s pairwise update
+        ``M2 = M2_a + M2_b + delta^2 n_a n_b / (n_a + n_b)``. Equal to folding the outcomes one
+        at a time with :meth:`add`, up to rounding. The grouping is the caller's: results are
+        reproducible bit for bit when the same outcomes are grouped the same way.
+
+        Parameters
+        ----------
+        outcomes : sequence of Outcome
+            Consecutive resamples (any number; failed capacities are NaN columns listed in
+            ``failures``).
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from complexity.engine import Outcome
+        >>> acc = PointAccumulator(3, 1, 2, 2)
+        >>> acc.add_block([Outcome(0, 0, np.array([0, 1]), np.array([[1.0], [2.0]]), np.zeros(1)),
+        ...                Outcome(1, 1, np.array([1, 2]), np.array([[4.0], [5.0]]), np.zeros(1))])
+        >>> acc.count[:, 0].tolist(), acc.mean[:, 0].tolist(), acc.m2[:, 0].tolist()
+        ([1.0, 2.0, 1.0], [1.0, 3.0, 5.0], [0.0, 2.0, 0.0])
+        """
+        K = len(outcomes)
+        if K == 0:
+            return
+        if K == 1:
+            self.add(outcomes[0])
+            return
+        n, C = self.count.shape
+        buf = np.zeros((K, n, C))
+        scored = np.zeros((K, n, 1))
+        fitted = np.ones((K, C))
+        for k, outcome in enumerate(outcomes):
+            buf[k, outcome.test] = outcome.residuals
+            scored[k, outcome.test] = 1.0
+            if outcome.failures:
+                failed = list(outcome.failures)
+                fitted[k, failed] = 0.0
+                buf[k, :, failed] = 0.0  # failed capacities are NaN columns
+        failed_kc = np.argwhere(fitted == 0.0)
+        # block count per point and capacity (sums of 0/1: exact)
+        cnt = scored[:, :, 0].T @ fitted if failed_kc.size else np.repeat(scored.sum(axis=0), C, 1)
+        block_mean = np.divide(buf.sum(axis=0), cnt, out=np.zeros((n, C)), where=cnt > 0)
+        dev = buf - block_mean
+        dev *= scored
+        for k, c in failed_kc:
+            dev[k, :, c] = 0.0
+        block_m2 = np.einsum("knc,knc->nc", dev, dev)
+        # Chan et al.'s merge of (count, mean, m2) with the block's (cnt, block_mean, block_m2)
+        total = self.count + cnt
+        share = np.divide(cnt, total, out=np.zeros((n, C)), where=total > 0)
+        delta = block_mean - self.mean
+        self.mean += delta * share
+        delta *= delta
+        delta *= self.count
+        delta *= share
+        delta += block_m2
+        self.m2 += delta
+        self.count = total
+
+        sq = np.multiply(buf, buf, out=dev)
+        loss = sq.sum(axis=1)
+        loss2 = np.einsum("knc,knc->kc", sq, sq)
+        sizes = np.array([o.test.size for o in outcomes], dtype=np.int64)
+        n_ok = sizes[:, None] * fitted.astype(np.int64)
+        index = np.array([o.index for o in outcomes], dtype=np.intp)
+        replicate = np.array([o.replicate for o in outcomes], dtype=np.intp)
+        self.resample_loss[index] = loss
+        self.resample_n[index] = n_ok
+        # a replicate may appear twice in a block (K-fold): unbuffered adds
+        np.add.at(self.replicate_loss, replicate, loss)
+        np.add.at(self.replicate_loss2, replicate, loss2)
+        np.add.at(self.replicate_n, replicate, n_ok)
+        train = np.array([o.train_mse for o in outcomes])
+        fit = np.isfinite(train)
+        self.train_sum += np.where(fit, train, 0.0).sum(axis=0)
+        self.train_n += fit.sum(axis=0)
+        for outcome in outcomes:
+            for c, message in outcome.failures.items():
+                self.failures.count[c] += 1
+                self.failures.first.setdefault(c, message)
+            if self.residuals is not None:
+                self.residuals[outcome.index, outcome.test] = outcome.residuals
+        self.n_added += K
 
     def _add_with_failures(self, outcome: Outcome) -> None:
         idx, res = outcome.test, outcome.residuals
