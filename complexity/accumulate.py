@@ -92,10 +92,15 @@ class PointAccumulator:
         n_replicates: int,
         keep_predictions: bool = False,
     ) -> None:
-        shape = (n_points, n_capacities)
-        self.count = np.zeros(shape)  # float64: exact for any realistic count, no casts
-        self.mean = np.zeros(shape)
-        self.m2 = np.zeros(shape)
+        # mean and m2 side by side, so one gather and one scatter per resample serve both
+        self._moments = np.zeros((n_points, 2, n_capacities))
+        self.mean = self._moments[:, 0]
+        self.m2 = self._moments[:, 1]
+        # counts (float64: exact for any realistic count, no casts): one per point while every
+        # fit succeeded (all capacities then count alike), per point and capacity after a failure
+        self._point_count: NDArray[np.float64] | None = np.zeros(n_points)
+        self._count: NDArray[np.float64] | None = None
+        self._n_capacities = n_capacities
         self.resample_loss = np.zeros((n_resamples, n_capacities))
         self.resample_n = np.zeros((n_resamples, n_capacities), dtype=np.int64)
         self.replicate_loss = np.zeros((n_replicates, n_capacities))
@@ -109,6 +114,22 @@ class PointAccumulator:
         )
         self.n_added = 0
 
+    @property
+    def count(self) -> NDArray[np.float64]:
+        """How many resamples scored each point, per capacity (read-only while uniform)."""
+        if self._count is not None:
+            return self._count
+        assert self._point_count is not None
+        shape = (self._point_count.size, self._n_capacities)
+        return np.broadcast_to(self._point_count[:, None], shape)
+
+    def _counts_per_capacity(self) -> NDArray[np.float64]:
+        """Switch to (and return) counts per point and capacity (after a failed fit)."""
+        if self._count is None:
+            self._count = np.array(self.count)
+            self._point_count = None
+        return self._count
+
     def add(self, outcome: Outcome) -> None:
         """Fold one resample's outcome into the running statistics."""
         idx, res = outcome.test, outcome.residuals
@@ -116,17 +137,21 @@ class PointAccumulator:
             self._add_with_failures(outcome)
         else:
             # Welford's update; every capacity was fitted, so every point counts once more.
-            cnt = np.take(self.count, idx, axis=0)
-            cnt += 1.0
-            old = np.take(self.mean, idx, axis=0)
-            delta = res - old
-            new = delta / cnt
-            new += old
-            m2 = np.take(self.m2, idx, axis=0)
-            m2 += delta * (res - new)
-            self.mean[idx] = new
-            self.m2[idx] = m2
-            self.count[idx] = cnt
+            moments = np.take(self._moments, idx, axis=0)
+            mean, m2 = moments[:, 0], moments[:, 1]
+            if self._point_count is not None:
+                cnt = np.take(self._point_count, idx)
+                cnt += 1.0
+                self._point_count[idx] = cnt
+                cnt = cnt[:, None]
+            else:
+                cnt = np.take(self._count, idx, axis=0)
+                cnt += 1.0
+                self._count[idx] = cnt
+            delta = res - mean
+            mean += delta / cnt
+            m2 += delta * (res - mean)
+            self._moments[idx] = moments
             sq = res * res
             n_ok = np.full(res.shape[1], res.shape[0], dtype=np.int64)
             self._add_sums(outcome, sq, n_ok)
@@ -175,8 +200,9 @@ class PointAccumulator:
                 fitted[k, failed] = 0.0
                 buf[k, :, failed] = 0.0  # failed capacities are NaN columns
         failed_kc = np.argwhere(fitted == 0.0)
-        # block count per point and capacity (sums of 0/1: exact)
-        cnt = scored[:, :, 0].T @ fitted if failed_kc.size else np.repeat(scored.sum(axis=0), C, 1)
+        # block count per point (and capacity, after failures): sums of 0/1, exact
+        before = self._counts_per_capacity() if failed_kc.size else self.count
+        cnt = scored[:, :, 0].T @ fitted if failed_kc.size else scored.sum(axis=0)
         block_mean = np.divide(buf.sum(axis=0), cnt, out=np.zeros((n, C)), where=cnt > 0)
         dev = buf - block_mean
         dev *= scored
@@ -184,16 +210,19 @@ class PointAccumulator:
             dev[k, :, c] = 0.0
         block_m2 = np.einsum("knc,knc->nc", dev, dev)
         # Chan et al.'s merge of (count, mean, m2) with the block's (cnt, block_mean, block_m2)
-        total = self.count + cnt
-        share = np.divide(cnt, total, out=np.zeros((n, C)), where=total > 0)
+        total = before + cnt
+        share = np.divide(cnt, total, out=np.zeros(total.shape), where=total > 0)
         delta = block_mean - self.mean
         self.mean += delta * share
         delta *= delta
-        delta *= self.count
+        delta *= before
         delta *= share
         delta += block_m2
         self.m2 += delta
-        self.count = total
+        if self._point_count is not None:
+            self._point_count = total[:, 0].copy()
+        else:
+            self._count[...] = total
 
         sq = np.multiply(buf, buf, out=dev)
         loss = sq.sum(axis=1)
@@ -224,18 +253,19 @@ class PointAccumulator:
         idx, res = outcome.test, outcome.residuals
         ok = np.isfinite(res)  # failed capacities are whole NaN columns
         # Welford's update, applied only where the fit succeeded.
-        cnt = self.count[idx] + ok
+        count = self._counts_per_capacity()
+        cnt = count[idx] + ok
         old = self.mean[idx]
         delta = np.where(ok, res - old, 0.0)
         new = old + np.divide(delta, cnt, out=np.zeros_like(delta), where=cnt > 0)
         self.m2[idx] += np.where(ok, delta * (res - new), 0.0)
         self.mean[idx] = new
-        self.count[idx] = cnt
+        count[idx] = cnt
         sq = np.where(ok, res, 0.0) ** 2
         self._add_sums(outcome, sq, ok.sum(axis=0))
 
     def _add_sums(self, outcome: Outcome, sq: NDArray[np.float64], n_ok: NDArray[np.int64]) -> None:
-        loss = sq.sum(axis=0)
+        loss = np.einsum("ij->j", sq)  # column sums (einsum: no slow axis-0 reduction)
         self.resample_loss[outcome.index] = loss
         self.resample_n[outcome.index] = n_ok
         self.replicate_loss[outcome.replicate] += loss
