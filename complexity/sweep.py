@@ -7,6 +7,7 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 from __future__ import annotations
 
 import dataclasses
+import functools
 import platform
 import sys
 import time
@@ -49,13 +50,19 @@ class CapacityWarning(UserWarning):
 
 
 def _versions() -> dict[str, str]:
+    return dict(_installed_versions())
+
+
+@functools.lru_cache(maxsize=1)
+def _installed_versions() -> tuple[tuple[str, str], ...]:
+    """Looked up once per process: reading package metadata costs milliseconds per sweep."""
     out = {"python": platform.python_version()}
     for pkg in ("complexity", "numpy", "scipy", "scikit-learn", "pandas", "joblib"):
         try:
             out[pkg] = _md.version(pkg)
         except _md.PackageNotFoundError:
             out[pkg] = "unknown"
-    return out
+    return tuple(out.items())
 
 
 def _linear_engine() -> Any:
