@@ -92,10 +92,10 @@ class PointAccumulator:
         n_replicates: int,
         keep_predictions: bool = False,
     ) -> None:
-        # mean and m2 side by side, so one gather and one scatter per resample serve both
-        self._moments = np.zeros((n_points, 2, n_capacities))
-        self.mean = self._moments[:, 0]
-        self.m2 = self._moments[:, 1]
+        # separate contiguous arrays: arithmetic on contiguous gathers is ~3x faster than on
+        # the strided halves of one interleaved array (measured), which outweighs a second gather
+        self.mean = np.zeros((n_points, n_capacities))
+        self.m2 = np.zeros((n_points, n_capacities))
         # counts (float64: exact for any realistic count, no casts): one per point while every
         # fit succeeded (all capacities then count alike), per point and capacity after a failure
         self._point_count: NDArray[np.float64] | None = np.zeros(n_points)
@@ -137,8 +137,8 @@ class PointAccumulator:
             self._add_with_failures(outcome)
         else:
             # Welford's update; every capacity was fitted, so every point counts once more.
-            moments = np.take(self._moments, idx, axis=0)
-            mean, m2 = moments[:, 0], moments[:, 1]
+            mean = np.take(self.mean, idx, axis=0)
+            m2 = np.take(self.m2, idx, axis=0)
             if self._point_count is not None:
                 cnt = np.take(self._point_count, idx)
                 cnt += 1.0
@@ -151,7 +151,8 @@ class PointAccumulator:
             delta = res - mean
             mean += delta / cnt
             m2 += delta * (res - mean)
-            self._moments[idx] = moments
+            self.mean[idx] = mean
+            self.m2[idx] = m2
             sq = res * res
             n_ok = np.full(res.shape[1], res.shape[0], dtype=np.int64)
             self._add_sums(outcome, sq, n_ok)
