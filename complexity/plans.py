@@ -108,10 +108,10 @@ class Plan:
 def _bootstrap_resample(n: int, root: np.random.SeedSequence, b: int) -> Resample:
     seed = child_seed(root, STREAM_RESAMPLE, b)
     rng = np.random.default_rng(seed)
-    train = rng.integers(0, n, size=n)
-    in_bag = np.zeros(n, dtype=bool)
-    in_bag[train] = True
-    return Resample(b, b, np.sort(train), np.flatnonzero(~in_bag), seed)
+    counts = np.bincount(rng.integers(0, n, size=n), minlength=n)
+    # the drawn rows in sorted order (a counting sort: the same array np.sort gives, faster)
+    train = np.repeat(np.arange(n), counts)
+    return Resample(b, b, train, np.flatnonzero(counts == 0), seed)
 
 
 class _LazyResamples(Sequence):

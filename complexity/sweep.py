@@ -7,6 +7,7 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 from __future__ import annotations
 
 import dataclasses
+import functools
 import platform
 import sys
 import time
@@ -24,7 +25,7 @@ from ._validation import (
     check_sample_weight,
     check_X_y,
 )
-from .accumulate import PointAccumulator
+from .accumulate import PointAccumulator, block_size
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, replicate_curves
 from .engine import FullFit, Outcome, Problem
@@ -49,13 +50,19 @@ class CapacityWarning(UserWarning):
 
 
 def _versions() -> dict[str, str]:
+    return dict(_installed_versions())
+
+
+@functools.lru_cache(maxsize=1)
+def _installed_versions() -> tuple[tuple[str, str], ...]:
+    """Looked up once per process: reading package metadata costs milliseconds per sweep."""
     out = {"python": platform.python_version()}
     for pkg in ("complexity", "numpy", "scipy", "scikit-learn", "pandas", "joblib"):
         try:
             out[pkg] = _md.version(pkg)
         except _md.PackageNotFoundError:
             out[pkg] = "unknown"
-    return out
+    return tuple(out.items())
 
 
 def _linear_engine() -> Any:
@@ -108,19 +115,34 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
     return estimate_noise(X, y, noise)
 
 
-def _guard_overflow(outcome: Outcome, n_points: int) -> Outcome:
+def _overflow_limit(n_points: int) -> float:
+    """Below this ``|residual|`` no error sum can overflow (slightly under the exact bound)."""
+    return float((np.finfo(np.float64).max / max(n_points, 1)) ** 0.25) * (1.0 - 1e-9)
+
+
+def _guard_overflow(outcome: Outcome, n_points: int, big: np.ndarray | None = None) -> Outcome:
     """Record as failed every capacity whose residuals are too large for the error sums.
 
     Sums of squared residuals (and of their squares, for standard errors) would overflow to
     infinity; such a fit is reported as a failure with its size instead of as an inf curve.
+    ``big`` (the largest ``|residual|`` per capacity, NaN where any is NaN) may be given when
+    already known.
     """
     res = outcome.residuals
-    with np.errstate(over="ignore", invalid="ignore"):
-        # failed capacities are NaN columns (max -> NaN): they are already recorded as failures
-        big = np.max(np.abs(res), axis=0, initial=0.0)
-        bad = ~np.isfinite(big**4 * float(max(n_points, 1)))
+    limit = _overflow_limit(n_points)
+    if big is None:
+        # one pass over the whole array first (a per-column reduction costs 10x more); NaN
+        # propagates (a failed capacity is a NaN column, already recorded as a failure)
+        if res.size == 0 or (res.max() <= limit and res.min() >= -limit):
+            return outcome
+        big = np.maximum(np.max(res, axis=0, initial=0.0), -np.min(res, axis=0, initial=0.0))
+    suspect = ~(big <= limit)  # NaN or close to the bound
     if outcome.failures:
-        bad[list(outcome.failures)] = False
+        suspect[list(outcome.failures)] = False
+    if not suspect.any():
+        return outcome
+    with np.errstate(over="ignore", invalid="ignore"):
+        bad = suspect & ~np.isfinite(big**4 * float(max(n_points, 1)))
     if not bad.any():
         return outcome
     res, train_mse, failures = res.copy(), outcome.train_mse.copy(), dict(outcome.failures)
@@ -135,6 +157,44 @@ def _guard_overflow(outcome: Outcome, n_points: int) -> Outcome:
             "that error sums overflow float64",
         )
     return dataclasses.replace(outcome, residuals=res, train_mse=train_mse, failures=failures)
+
+
+def _guard_block(outcomes: list[Outcome], n_points: int) -> list[Outcome]:
+    """:func:`_guard_overflow` for a block of outcomes, with one check for the whole block."""
+    if len(outcomes) == 1:
+        return [_guard_overflow(outcomes[0], n_points)]
+    sizes = [o.test.size for o in outcomes]
+    if not sum(sizes):
+        return outcomes
+    C = outcomes[0].residuals.shape[1]
+    starts = np.cumsum([0, *sizes[:-1]])
+    nonempty = np.array(sizes) > 0
+    stacked = np.concatenate([o.residuals for o in outcomes])
+    top = np.zeros((len(outcomes), C))
+    low = np.zeros((len(outcomes), C))
+    # np.maximum / np.minimum propagate NaN, as np.max does
+    top[nonempty] = np.maximum.reduceat(stacked, starts[nonempty], axis=0)
+    low[nonempty] = np.minimum.reduceat(stacked, starts[nonempty], axis=0)
+    big = np.maximum(np.maximum(top, 0.0), -low)
+    suspect = ~(big <= _overflow_limit(n_points))
+    if not suspect.any():
+        return outcomes
+    return [
+        _guard_overflow(o, n_points, big[k]) if suspect[k].any() else o
+        for k, o in enumerate(outcomes)
+    ]
+
+
+def _blocks(outcomes: Any, size: int) -> Any:
+    """Group consecutive outcomes into the blocks ``index // size`` (see accumulate.block_size)."""
+    block: list[Outcome] = []
+    for outcome in outcomes:
+        if block and outcome.index // size != block[0].index // size:
+            yield block
+            block = []
+        block.append(outcome)
+    if block:
+        yield block
 
 
 def _all_failed_error(
@@ -315,8 +375,8 @@ def sweep(
                 on_done=counter.update,
             )
         )
-        for outcome in outcomes:
-            acc.add(_guard_overflow(outcome, X_eval.shape[0]))
+        for block in _blocks(outcomes, block_size(X_eval.shape[0], C)):
+            acc.add_block(_guard_block(block, X_eval.shape[0]))
     finally:
         counter.close()
 

@@ -5,7 +5,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from complexity.accumulate import PointAccumulator
+from complexity.accumulate import PointAccumulator, block_size
 from complexity.engine import Outcome
 
 
@@ -52,3 +52,81 @@ def test_memory_does_not_grow_with_resamples():
     big = PointAccumulator(1000, 5, 10_000, 10_000)
     assert small.mean.nbytes == big.mean.nbytes
     assert big.residuals is None
+
+
+def _outcomes(B, n, C, seed, offset, density, fail_rate):
+    """Random outcomes: each resample scores a random subset; some capacities fail (NaN columns)."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for b in range(B):
+        test = np.flatnonzero(rng.random(n) < density)
+        res = offset + rng.normal(size=(test.size, C)) * rng.uniform(1e-3, 1.0, C)
+        failures = {int(c): f"failed {c}" for c in np.flatnonzero(rng.random(C) < fail_rate)}
+        res[:, list(failures)] = np.nan
+        train = rng.uniform(0.0, 1.0, C)
+        train[list(failures)] = np.nan
+        out.append(Outcome(b, b // 2, test, res, train, failures))
+    return out
+
+
+def _close(a, b, rtol, atol=0.0):
+    scale = np.maximum(np.abs(a), np.abs(b))
+    np.testing.assert_array_less(np.abs(a - b), rtol * scale + atol + 1e-300)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    st.integers(1, 30),
+    st.integers(1, 9),
+    st.integers(1, 4),
+    st.integers(0, 10_000),
+    st.floats(-1e3, 1e3),
+    st.sampled_from([0.0, 0.37, 0.9, 1.0]),
+    st.sampled_from([0.0, 0.2]),
+    st.integers(1, 12),
+)
+def test_block_merge_equals_welford(B, n, C, seed, offset, density, fail_rate, K):
+    # law (Chan, Golub & LeVeque 1983, pairwise update of count/mean/M2): folding blocks of
+    # resamples and merging them equals folding the resamples one at a time (Welford), up to
+    # rounding; counts, per-resample and per-replicate sums and failures agree too.
+    outcomes = _outcomes(B, n, C, seed, offset, density, fail_rate)
+    one = PointAccumulator(n, C, B, (B + 1) // 2, keep_predictions=True)
+    for o in outcomes:
+        one.add(o)
+    blk = PointAccumulator(n, C, B, (B + 1) // 2, keep_predictions=True)
+    for start in range(0, B, K):
+        blk.add_block(outcomes[start : start + K])
+    np.testing.assert_array_equal(blk.count, one.count)
+    # 1e-12 relative; a mean that cancels to about zero is compared on the residuals' scale
+    _close(blk.mean, one.mean, 1e-12, atol=1e-12 * (1 + abs(offset)))
+    # M2 of residuals far from zero (offset) with a small spread carries the rounding of the
+    # offset: both orders lose the same digits, (offset / spread)^2 * eps at most
+    _close(blk.m2, one.m2, 1e-12 * (1 + abs(offset)) ** 2)
+    for name in ("resample_loss", "replicate_loss", "replicate_loss2", "train_sum"):
+        _close(getattr(blk, name), getattr(one, name), 1e-12)
+    for name in ("resample_n", "replicate_n", "train_n"):
+        np.testing.assert_array_equal(getattr(blk, name), getattr(one, name))
+    np.testing.assert_array_equal(blk.failures.count, one.failures.count)
+    assert blk.failures.first == one.failures.first
+    np.testing.assert_array_equal(blk.residuals, one.residuals)
+    assert blk.n_added == one.n_added == B
+
+
+def test_block_merge_m2_of_a_constant_point_offset_far_from_zero():
+    # Chan et al.'s merge keeps M2 accurate where a naive sum of squares cancels: residuals
+    # 1e8 + {0, 1, 2, 3} (mean 1e8 + 1.5, M2 = 5 exactly) split over two blocks.
+    vals = 1e8 + np.arange(4.0)
+    outs = [Outcome(b, b, np.array([0]), np.array([[v]]), np.zeros(1)) for b, v in enumerate(vals)]
+    acc = PointAccumulator(1, 1, 4, 4)
+    acc.add_block(outs[:2])
+    acc.add_block(outs[2:])
+    assert acc.mean[0, 0] == 1e8 + 1.5
+    assert acc.m2[0, 0] == 5.0
+
+
+def test_block_size_is_a_function_of_the_problem_size_only():
+    # design decision (DESIGN.md "Determinism"): block boundaries never depend on n_jobs
+    assert block_size(40, 11) == block_size(40, 11) >= 2
+    assert block_size(20_000, 16) == 1
+    assert all(block_size(n, 5) >= block_size(n * 2, 5) for n in (1, 10, 1000))
+    assert block_size(1, 1) <= 256
