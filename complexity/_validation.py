@@ -152,6 +152,21 @@ def _raw_array(value: Any, name: str) -> np.ndarray:
     return raw
 
 
+def _float_copy(raw: NDArray[Any], name: str) -> NDArray[np.float64]:
+    """A float64 copy of ``raw``; booleans and non-numbers are refused, naming ``name``."""
+    if raw.dtype.kind == "b":
+        raise TypeError(
+            f"{name} must be numeric; got a boolean array. Convert it with .astype(float)."
+        )
+    try:
+        return np.array(raw, dtype=np.float64, copy=True)
+    except (TypeError, ValueError):
+        raise TypeError(
+            f"{name} must contain only numbers; got an array of dtype {raw.dtype} "
+            f"starting {_short_repr(raw.ravel()[:3].tolist())}."
+        ) from None
+
+
 def check_sample_weight(sample_weight: Any, n: int) -> NDArray[np.float64] | None:
     """Validate per-row weights: one finite, non-negative number per row, not all zero.
 
@@ -163,16 +178,7 @@ def check_sample_weight(sample_weight: Any, n: int) -> NDArray[np.float64] | Non
         raise TypeError(
             f"sample_weight must be an array of numbers; got {_short_repr(sample_weight)}."
         )
-    raw = _raw_array(sample_weight, "sample_weight")
-    if raw.dtype.kind == "b":
-        raise TypeError("sample_weight must be numeric; got a boolean array. Use .astype(float).")
-    try:
-        w = np.array(raw, dtype=np.float64, copy=True)
-    except (TypeError, ValueError):
-        raise TypeError(
-            f"sample_weight must contain only numbers; got dtype {raw.dtype} "
-            f"starting {_short_repr(raw.ravel()[:3].tolist())}."
-        ) from None
+    w = _float_copy(_raw_array(sample_weight, "sample_weight"), "sample_weight")
     if w.shape != (n,):
         raise ValueError(
             f"sample_weight must hold one weight per row of X ({n}); got shape {w.shape}."
@@ -231,21 +237,7 @@ def check_X(X: ArrayLike, *, name: str = "X") -> tuple[NDArray[np.float64], tupl
     elif isinstance(X, (str, bytes)) or X is None:
         raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(X)}.")
     else:
-        raw = _raw_array(X, name)
-        if raw.dtype.kind not in "iuf":
-            if raw.dtype.kind == "b":
-                raise TypeError(
-                    f"{name} must be numeric; got a boolean array. Convert it with .astype(float)."
-                )
-            try:
-                arr = np.array(raw, dtype=np.float64, copy=True)
-            except (TypeError, ValueError):
-                raise TypeError(
-                    f"{name} must contain only numbers; got an array of dtype {raw.dtype} "
-                    f"starting {_short_repr(raw.ravel()[:3].tolist())}."
-                ) from None
-        else:
-            arr = np.array(raw, dtype=np.float64, copy=True)
+        arr = _float_copy(_raw_array(X, name), name)
     if arr.ndim == 1:
         arr = arr.reshape(-1, 1)
     if arr.ndim != 2:
@@ -282,16 +274,7 @@ def check_y(y: ArrayLike, *, name: str = "y") -> NDArray[np.float64]:
         y = y.iloc[:, 0]
     if isinstance(y, (str, bytes)) or y is None:
         raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(y)}.")
-    raw = _raw_array(y, name)
-    if raw.dtype.kind == "b":
-        raise TypeError(f"{name} must be numeric; got a boolean array.")
-    try:
-        arr = np.array(raw, dtype=np.float64, copy=True)
-    except (TypeError, ValueError):
-        raise TypeError(
-            f"{name} must contain only numbers; got dtype {raw.dtype} "
-            f"starting {_short_repr(raw.ravel()[:3].tolist())}."
-        ) from None
+    arr = _float_copy(_raw_array(y, name), name)
     if arr.ndim == 2 and arr.shape[1] == 1:
         arr = arr[:, 0].copy()
     if arr.ndim != 1:
