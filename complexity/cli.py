@@ -61,24 +61,22 @@ def _whole_numbers(text: str) -> list[int]:
     return sorted(set(values))
 
 
-def _count(text: str) -> int:
+def _whole_number(text: str, minimum: int, bound: str) -> int:
     try:
         value = int(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{text!r} must be at least 1")
+    if value < minimum:
+        raise argparse.ArgumentTypeError(f"{text!r} must be {bound}")
     return value
+
+
+def _count(text: str) -> int:
+    return _whole_number(text, 1, "at least 1")
 
 
 def _seed(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be 0 or more")
-    return value
+    return _whole_number(text, 0, "0 or more")
 
 
 def _noise(text: str) -> Any:
