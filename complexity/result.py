@@ -178,6 +178,13 @@ class SweepResult:
                 f"  {name} {cap}: {row['count']} failed, first: {row['first_message']}"
                 for cap, row in self.failures.iterrows()
             ]
+        if self.inclusion is not None and self.recommended in self.inclusion.index:
+            shares = self.inclusion.loc[self.recommended].sort_values(ascending=False)
+            shares = shares[shares > 0]
+            lines.append(
+                f"Predictors among the first {self.recommended} across resamples (share): "
+                + ", ".join(f"{name} {share:.2f}" for name, share in shares.items())
+            )
         if self.notes:
             lines.append("Notes:")
             lines += [f"  - {n}" for n in self.notes]

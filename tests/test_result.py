@@ -76,3 +76,19 @@ def test_summary_and_html(result):
     html = result._repr_html_()
     assert html.startswith("<div>") and "Recommended degree" in html
     assert "SweepResult" in repr(result)
+
+
+def test_summary_lists_predictor_inclusion_for_ranked_feature_ladders():
+    data = load_diabetes(as_frame=True)  # open data set shipped with scikit-learn
+    r = cx.sweep(
+        cx.FeatureLadder(range(1, 5), order="correlation"),
+        data.data.iloc[:150],
+        data.target.iloc[:150],
+        plan=cx.CrossValidation(3),
+        random_state=0,
+    )
+    line = next(ln for ln in r.summary().splitlines() if ln.startswith("Predictors among"))
+    shares = r.inclusion.loc[r.recommended]
+    top = shares.idxmax()
+    assert f"{top} {shares[top]:.2f}" in line
+    assert f"the first {r.recommended} " in line
