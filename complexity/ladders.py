@@ -7,7 +7,6 @@ every resampled training set; least-squares ladders are also served by the exact
 
 from __future__ import annotations
 
-import math
 import numbers
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any
@@ -21,6 +20,7 @@ from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
 from ._validation import _short_repr, check_option, repr_from_description
+from .basis import LegendreFeatures, n_total_degree_terms
 
 __all__ = ["FeatureLadder", "Ladder", "ParamLadder", "PolynomialLadder"]
 
@@ -93,11 +93,6 @@ def _check_int_ladder(name: str, values: Any, minimum: int) -> tuple[int, ...]:
         dup = sorted({v for v in out if out.count(v) > 1})
         raise ValueError(f"{name} contains repeated values {dup}; give each capacity once.")
     return tuple(sorted(out))
-
-
-def _n_terms(n_predictors: int, degree: int) -> int:
-    """Number of monomials of total degree <= ``degree`` in ``n_predictors`` variables."""
-    return math.comb(n_predictors + degree, degree)
 
 
 def _distinct_rows(X: NDArray[np.float64]) -> int:
@@ -175,9 +170,9 @@ class PolynomialLadder(Ladder):
             )
         distinct = _distinct_rows(X)
         top = max(self.degrees)
-        need = _n_terms(X.shape[1], top)
+        need = n_total_degree_terms(X.shape[1], top)
         if need > distinct:
-            usable = [d for d in self.degrees if _n_terms(X.shape[1], d) <= distinct]
+            usable = [d for d in self.degrees if n_total_degree_terms(X.shape[1], d) <= distinct]
             raise ValueError(
                 f"degrees reach {top}, which needs {need} coefficients, but X has only {distinct} "
                 f"distinct point(s). Use degrees up to {max(usable) if usable else 0} "
@@ -194,7 +189,6 @@ class PolynomialLadder(Ladder):
     def build(
         self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
     ) -> list[Any]:
-        from .basis import LegendreFeatures
 
         domain = self._domain_for(X)
         return [
@@ -208,7 +202,7 @@ class PolynomialLadder(Ladder):
         ]
 
     def training_problem(self, index: int, X_train: NDArray[np.float64]) -> str | None:
-        need = _n_terms(X_train.shape[1], self.degrees[index])
+        need = n_total_degree_terms(X_train.shape[1], self.degrees[index])
         have = _distinct_rows(X_train)
         if have < need:
             return (
