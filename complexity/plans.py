@@ -11,13 +11,14 @@ from __future__ import annotations
 import functools
 import numbers
 from collections.abc import Callable, Iterator, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 from sklearn.model_selection import KFold
 
+from ._streams import bootstrap_draws
 from ._validation import (
     _short_repr,
     as_seed_sequence,
@@ -58,15 +59,23 @@ class Resample:
         simulation, whose training set is drawn from ``seed``.
     test : ndarray of int
         Positions of the evaluation points scored against this training set.
-    seed : numpy.random.SeedSequence
-        The resample's own seed.
+    root : numpy.random.SeedSequence
+        The sweep's root seed.
+    key : tuple of int
+        Where the resample's own seed sits below the root (see :attr:`seed`).
     """
 
     index: int
     replicate: int
     train: NDArray[np.intp] | None
     test: NDArray[np.intp]
-    seed: np.random.SeedSequence
+    root: np.random.SeedSequence = field(repr=False)
+    key: tuple[int, ...]
+
+    @property
+    def seed(self) -> np.random.SeedSequence:
+        """The resample's own seed: the child of ``root`` at ``(STREAM_RESAMPLE, *key)``."""
+        return child_seed(self.root, STREAM_RESAMPLE, *self.key)
 
 
 class Plan:
@@ -105,13 +114,17 @@ class Plan:
         return repr_from_description(self)
 
 
-def _bootstrap_resample(n: int, root: np.random.SeedSequence, b: int) -> Resample:
-    seed = child_seed(root, STREAM_RESAMPLE, b)
-    rng = np.random.default_rng(seed)
-    counts = np.bincount(rng.integers(0, n, size=n), minlength=n)
-    # the drawn rows in sorted order (a counting sort: the same array np.sort gives, faster)
-    train = np.repeat(np.arange(n), counts)
-    return Resample(b, b, train, np.flatnonzero(counts == 0), seed)
+def _bootstrap_batch(n: int, root: np.random.SeedSequence, start: int, stop: int) -> list[Resample]:
+    """Bootstrap resamples ``start .. stop - 1``: resample b draws its n rows from its own seed."""
+    out = []
+    for b, rows in enumerate(
+        bootstrap_draws(root, (STREAM_RESAMPLE,), range(start, stop), n), start
+    ):
+        counts = np.bincount(rows, minlength=n)
+        # the drawn rows in sorted order (a counting sort: the same array np.sort gives, faster)
+        train = np.repeat(np.arange(n), counts)
+        out.append(Resample(b, b, train, np.flatnonzero(counts == 0), root, (b,)))
+    return out
 
 
 class _LazyResamples(Sequence):
@@ -122,8 +135,8 @@ class _LazyResamples(Sequence):
     Items are rebuilt on every access (identical each time).
     """
 
-    def __init__(self, make: Callable[[int], Resample], count: int) -> None:
-        self._make, self._count = make, count
+    def __init__(self, make: Callable[[int, int], list[Resample]], count: int, batch: int) -> None:
+        self._make, self._count, self._batch = make, count, batch
 
     def __len__(self) -> int:
         return self._count
@@ -133,13 +146,20 @@ class _LazyResamples(Sequence):
         """Every lazily drawn resample is its own replicate (bootstrap)."""
         return self._count
 
+    def __iter__(self) -> Iterator[Resample]:
+        for start in range(0, self._count, self._batch):
+            yield from self._make(start, min(start + self._batch, self._count))
+
     def __getitem__(self, i: Any) -> Any:
         if isinstance(i, slice):
-            return [self._make(b) for b in range(*i.indices(self._count))]
+            start, stop, step = i.indices(self._count)
+            if step == 1:
+                return self._make(start, stop) if stop > start else []
+            return [self._make(b, b + 1)[0] for b in range(start, stop, step)]
         b = int(i) + self._count if int(i) < 0 else int(i)
         if not 0 <= b < self._count:
             raise IndexError(f"resample {i} out of range (there are {self._count})")
-        return self._make(b)
+        return self._make(b, b + 1)[0]
 
 
 class Bootstrap(Plan):
@@ -170,7 +190,9 @@ class Bootstrap(Plan):
 
     def resamples(self, n, root, X=None, y=None, groups=None):
         # drawn on demand: B resamples of n rows never hold B index arrays at once
-        return _LazyResamples(functools.partial(_bootstrap_resample, n, root), self.n_resamples)
+        # drawn in batches of about 64K rows, each resample from its own seed
+        batch = max(1, min(256, 65_536 // max(n, 1)))
+        return _LazyResamples(functools.partial(_bootstrap_batch, n, root), self.n_resamples, batch)
 
     def describe(self) -> dict[str, Any]:
         return {"kind": self.kind, "n_resamples": self.n_resamples}
@@ -225,7 +247,7 @@ class CrossValidation(Plan):
             folds = KFold(self.n_splits, shuffle=self.shuffle, random_state=state)
             for k, (train, test) in enumerate(folds.split(np.empty((n, 1)))):
                 index = r * self.n_splits + k
-                out.append(Resample(index, r, train, test, child_seed(root, STREAM_RESAMPLE, r, k)))
+                out.append(Resample(index, r, train, test, root, (r, k)))
         return out
 
     def describe(self) -> dict[str, Any]:
@@ -262,9 +284,7 @@ class _SplitterPlan(Plan):
             if seen[test].any():  # a row scored again: a new repetition has started
                 replicate, seen = replicate + 1, np.zeros(n, dtype=bool)
             seen[test] = True
-            out.append(
-                Resample(index, replicate, train, test, child_seed(root, STREAM_RESAMPLE, index))
-            )
+            out.append(Resample(index, replicate, train, test, root, (index,)))
         if not out:
             raise ValueError(f"plan {self.splitter!r} produced no splits.")
         return out
@@ -394,10 +414,7 @@ class Simulation(Plan):
 
     def resamples(self, n, root, X=None, y=None, groups=None):
         everywhere = np.arange(self.x_eval.shape[0])
-        return [
-            Resample(b, b, None, everywhere, child_seed(root, STREAM_RESAMPLE, b))
-            for b in range(self.n_resamples)
-        ]
+        return [Resample(b, b, None, everywhere, root, (b,)) for b in range(self.n_resamples)]
 
     def describe(self) -> dict[str, Any]:
         return {
