@@ -14,9 +14,11 @@ same numbers in bulk:
 3. numpy's bounded draw for ranges below 2**32 (Lemire's multiply-and-reject on 32-bit halves,
    low half first), vectorised over rows.
 
-Each batch checks its first resample against a literal ``default_rng(child).integers`` draw and
-falls back to the literal route if they ever disagree (a different numpy), so the result is always
-the literal draw. Tests compare both routes on many roots.
+Draws of more than 2,048 rows are made literally (numpy's own loop is faster there, and the
+seed overhead is small beside the draw). Each batch checks its first resample against a literal
+``default_rng(child).integers`` draw and falls back to the literal route if they ever disagree (a
+different numpy), so the result is always the literal draw. Tests compare both routes on many
+roots.
 """
 
 from __future__ import annotations
@@ -37,6 +39,9 @@ _MIX_L, _MIX_R = 0xCA01F9DD, 0x4973F715
 _PCG_MULT = 0x2360ED051FC65DA44385DF649FCCF645
 _POOL = 4
 _BATCH_VALUES = 32_768  # raw 64-bit values per vectorised pass
+# beyond about 3,000 rows per draw numpy's own loop is faster than the vectorised passes
+# (measured: 34 vs 69 microseconds per resample at 1,000 rows, 228 vs 128 at 10,000)
+_BULK_MAX_SIZE = 2_048
 
 
 def _words(value: object) -> list[int]:
@@ -202,7 +207,7 @@ def bootstrap_draws(
     idx = [int(i) for i in indices]
     if not idx:
         return []
-    if n <= 1 or n >= _M32 or size < 1:
+    if n <= 1 or n >= _M32 or not 1 <= size <= _BULK_MAX_SIZE:
         return [_literal(root, key, i, n, size) for i in idx]
     states = child_states(root, key, idx)
     bitgen = np.random.PCG64()
