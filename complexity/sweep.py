@@ -6,7 +6,6 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 
 from __future__ import annotations
 
-import dataclasses
 import functools
 import platform
 import sys
@@ -25,10 +24,10 @@ from ._validation import (
     check_sample_weight,
     check_X_y,
 )
-from .accumulate import PointAccumulator, block_size
+from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, replicate_curves
-from .engine import FullFit, Outcome, Problem
+from .engine import FullFit, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
 from .noise import NoiseEstimate, estimate_noise
@@ -113,88 +112,6 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
             detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
         )
     return estimate_noise(X, y, noise)
-
-
-def _overflow_limit(n_points: int) -> float:
-    """Below this ``|residual|`` no error sum can overflow (slightly under the exact bound)."""
-    return float((np.finfo(np.float64).max / max(n_points, 1)) ** 0.25) * (1.0 - 1e-9)
-
-
-def _guard_overflow(outcome: Outcome, n_points: int, big: np.ndarray | None = None) -> Outcome:
-    """Record as failed every capacity whose residuals are too large for the error sums.
-
-    Sums of squared residuals (and of their squares, for standard errors) would overflow to
-    infinity; such a fit is reported as a failure with its size instead of as an inf curve.
-    ``big`` (the largest ``|residual|`` per capacity, NaN where any is NaN) may be given when
-    already known.
-    """
-    res = outcome.residuals
-    limit = _overflow_limit(n_points)
-    if big is None:
-        # one pass over the whole array first (a per-column reduction costs 10x more); NaN
-        # propagates (a failed capacity is a NaN column, already recorded as a failure)
-        if res.size == 0 or (res.max() <= limit and res.min() >= -limit):
-            return outcome
-        big = np.maximum(np.max(res, axis=0, initial=0.0), -np.min(res, axis=0, initial=0.0))
-    suspect = ~(big <= limit)  # NaN or close to the bound
-    if outcome.failures:
-        suspect[list(outcome.failures)] = False
-    if not suspect.any():
-        return outcome
-    with np.errstate(over="ignore", invalid="ignore"):
-        bad = suspect & ~np.isfinite(big**4 * float(max(n_points, 1)))
-    if not bad.any():
-        return outcome
-    res, train_mse, failures = res.copy(), outcome.train_mse.copy(), dict(outcome.failures)
-    for c in np.flatnonzero(bad):
-        res[:, c] = np.nan
-        train_mse[c] = np.nan
-        failures.setdefault(
-            int(c),
-            "the fit returned NaN predictions"
-            if np.isnan(big[c])
-            else f"predictions so far from the targets (|prediction - target| up to {big[c]:.3g}) "
-            "that error sums overflow float64",
-        )
-    return dataclasses.replace(outcome, residuals=res, train_mse=train_mse, failures=failures)
-
-
-def _guard_block(outcomes: list[Outcome], n_points: int) -> list[Outcome]:
-    """:func:`_guard_overflow` for a block of outcomes, with one check for the whole block."""
-    if len(outcomes) == 1:
-        return [_guard_overflow(outcomes[0], n_points)]
-    sizes = [o.test.size for o in outcomes]
-    if not sum(sizes):
-        return outcomes
-    C = outcomes[0].residuals.shape[1]
-    starts = np.cumsum([0, *sizes[:-1]])
-    nonempty = np.array(sizes) > 0
-    stacked = np.concatenate([o.residuals for o in outcomes])
-    top = np.zeros((len(outcomes), C))
-    low = np.zeros((len(outcomes), C))
-    # np.maximum / np.minimum propagate NaN, as np.max does
-    top[nonempty] = np.maximum.reduceat(stacked, starts[nonempty], axis=0)
-    low[nonempty] = np.minimum.reduceat(stacked, starts[nonempty], axis=0)
-    big = np.maximum(np.maximum(top, 0.0), -low)
-    suspect = ~(big <= _overflow_limit(n_points))
-    if not suspect.any():
-        return outcomes
-    return [
-        _guard_overflow(o, n_points, big[k]) if suspect[k].any() else o
-        for k, o in enumerate(outcomes)
-    ]
-
-
-def _blocks(outcomes: Any, size: int) -> Any:
-    """Group consecutive outcomes into the blocks ``index // size`` (see accumulate.block_size)."""
-    block: list[Outcome] = []
-    for outcome in outcomes:
-        if block and outcome.index // size != block[0].index // size:
-            yield block
-            block = []
-        block.append(outcome)
-    if block:
-        yield block
 
 
 def _all_failed_error(
@@ -362,21 +279,27 @@ def sweep(
 
     counter = FitCounter(len(resamples) * C, progress)
     try:
-        outcomes = (
-            eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
-            if checkpoint is None
-            else resume(
-                checkpoint,
-                eng,
-                engine_used,
-                problem,
-                resamples,
-                n_jobs=n_jobs,
-                on_done=counter.update,
+        if checkpoint is None and not keep_predictions:
+            # each block of resamples is reduced to its tally where it was fitted
+            for part in eng.run_tallies(problem, resamples, n_jobs=n_jobs, on_done=counter.update):
+                acc.merge(part)
+        else:
+            outcomes = (
+                eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
+                if checkpoint is None
+                else resume(
+                    checkpoint,
+                    eng,
+                    engine_used,
+                    problem,
+                    resamples,
+                    n_jobs=n_jobs,
+                    on_done=counter.update,
+                )
             )
-        )
-        for block in _blocks(outcomes, block_size(X_eval.shape[0], C)):
-            acc.add_block(_guard_block(block, X_eval.shape[0]))
+            n_eval = X_eval.shape[0]
+            for part in tallies(outcomes, eng.block_size(problem), n_eval, C, acc.keep):
+                acc.merge(part)
     finally:
         counter.close()
 

@@ -127,6 +127,6 @@ def test_block_merge_m2_of_a_constant_point_offset_far_from_zero():
 def test_block_size_is_a_function_of_the_problem_size_only():
     # design decision (DESIGN.md "Determinism"): block boundaries never depend on n_jobs
     assert block_size(40, 11) == block_size(40, 11) >= 2
-    assert block_size(20_000, 16) == 1
+    assert block_size(20_000, 16) == 32  # large: folded outcome by outcome, merged per block
     assert all(block_size(n, 5) >= block_size(n * 2, 5) for n in (1, 10, 1000))
     assert block_size(1, 1) <= 256

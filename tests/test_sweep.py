@@ -347,7 +347,8 @@ def test_block_overflow_guard_equals_the_per_outcome_guard(seed, K, size):
     # float64 (max about 1.8e308, common practice) or a residual is NaN; checking a block at
     # once must mark exactly what checking each outcome does, with the same messages.
     from complexity.engine import Outcome
-    from complexity.sweep import _guard_block, _guard_overflow
+    from complexity.accumulate import guard_block as _guard_block
+    from complexity.accumulate import guard_overflow as _guard_overflow
 
     rng = np.random.default_rng(seed)
     n_points, C = 50, 3

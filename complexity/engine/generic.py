@@ -16,10 +16,12 @@ from joblib import Parallel, delayed
 from numpy.typing import NDArray
 from sklearn.base import clone
 
+from ..accumulate import Tally, tallies
+from ..accumulate import block_size as _points_block_size
 from ..plans import STREAM_ESTIMATOR, STREAM_FULL_FIT, Resample, child_seed
 from . import FullFit, Outcome, Problem
 
-__all__ = ["fit_full", "run"]
+__all__ = ["block_size", "fit_full", "run", "run_tallies"]
 
 
 def _random_state_keys(model: Any) -> list[str]:
@@ -168,6 +170,28 @@ def run(
         yield from outcomes
         if on_done is not None:
             on_done(len(outcomes) * problem.n_capacities)
+
+
+def block_size(problem: Problem) -> int:
+    """Resamples per accumulation block (a function of the problem's size only)."""
+    return _points_block_size(problem.X_eval.shape[0], problem.n_capacities)
+
+
+def run_tallies(
+    problem: Problem,
+    resamples: Sequence[Resample],
+    *,
+    n_jobs: int | None = None,
+    on_done: Callable[[int], None] | None = None,
+) -> Iterator[Tally]:
+    """Yield the :class:`~complexity.accumulate.Tally` of every block of resamples, in order.
+
+    Fits dominate here, so the outcomes come back from the workers and are tallied as they
+    arrive, by :func:`block_size` blocks (the same blocks a checkpointed sweep uses).
+    """
+    n_points, C = problem.X_eval.shape[0], problem.n_capacities
+    outcomes = run(problem, resamples, n_jobs=n_jobs, on_done=on_done)
+    yield from tallies(outcomes, block_size(problem), n_points, C)
 
 
 def fit_full(problem: Problem) -> FullFit:

@@ -32,6 +32,7 @@ import numpy as np
 import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 
+from ..accumulate import Tally, tally
 from ..basis import PolynomialBasis, _exact_residuals
 from . import FullFit, Outcome, Problem
 
@@ -39,11 +40,13 @@ __all__ = [
     "NestedFit",
     "ScaledDesign",
     "UserCoefficients",
+    "block_size",
     "fit_full",
     "fit_linear",
     "fit_polynomial",
     "nested_least_squares",
     "run",
+    "run_tallies",
     "scaled_design",
     "supports",
     "user_coefficients",
@@ -785,10 +788,39 @@ def _reference(problem: Problem, Z_ref: NDArray[np.float64], design: _LadderDesi
     Q, _, _ = lapack.dormqr("L", "N", raw, tau, eye, lwork=max(lwork, 1))
     Q0 = np.ascontiguousarray(np.asarray(Q)[:, :pv])
     R0inv = scipy.linalg.solve_triangular(R[:pv, :pv], np.eye(pv)) if pv else np.zeros((0, 0))
-    # per chunk: counts (chunk x n) and residuals (about chunk x n/2 x C for out-of-bag rows)
-    fit_in = _CHUNK_DOUBLES // max(n * max(1, len(design.n_cols) // 2), 1)
-    chunk = max([size for size in _CHUNK_SIZES if size <= fit_in], default=_CHUNK_SIZES[0])
+    chunk = _chunk_size(n, len(design.n_cols))
     return _Reference(design, Q0, R0inv, pv, np.asarray(design.n_cols, dtype=np.intp), chunk)
+
+
+def _chunk_size(n_rows: int, n_capacities: int) -> int:
+    """Resamples per chunk: a function of the reference rows and the capacities only."""
+    # per chunk: counts (chunk x n) and residuals (about chunk x n/2 x C for out-of-bag rows)
+    fit_in = _CHUNK_DOUBLES // max(n_rows * max(1, n_capacities // 2), 1)
+    return max([size for size in _CHUNK_SIZES if size <= fit_in], default=_CHUNK_SIZES[0])
+
+
+def block_size(problem: Problem) -> int:
+    """Resamples per accumulation block: the engine's chunk (tallied where it is computed).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> from complexity.engine import Problem
+    >>> X = np.linspace(0, 1, 40)[:, None]
+    >>> ladder = cx.PolynomialLadder(range(0, 11))
+    >>> problem = Problem(ladder, ladder.build(X), X, X[:, 0], X, X[:, 0], cx.Bootstrap(5),
+    ...                   np.random.SeedSequence(0), X)
+    >>> block_size(problem)
+    1000
+    """
+    if problem.simulated:
+        plan = problem.plan
+        rows = (plan.design if plan.design is not None else problem.design_X).shape[0]
+    else:
+        assert problem.X is not None
+        rows = problem.X.shape[0]
+    return _chunk_size(rows, problem.n_capacities)
 
 
 def _capacity_label(problem: Problem, c: int) -> str:
@@ -1158,6 +1190,41 @@ def _group(resamples: Sequence[Any], size: int) -> Iterator[list[Any]]:
         yield group
 
 
+def _chunk_tally(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> Tally:
+    outcomes = _chunk_task(problem, ref, shared, chunk)
+    return tally(outcomes, problem.X_eval.shape[0], problem.n_capacities)
+
+
+def run_tallies(
+    problem: Problem,
+    resamples: Sequence[Any],
+    *,
+    n_jobs: int | None = None,
+    on_done: Any = None,
+) -> Iterator[Tally]:
+    """Yield one :class:`~complexity.accumulate.Tally` per chunk of resamples, in order.
+
+    Like :func:`run`, but each chunk's outcomes are reduced to their tally in the worker that
+    computed them, so only per-point sums travel back and the accumulation runs in parallel.
+    The tallies equal those of :func:`run`'s outcomes grouped by :func:`block_size`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> from complexity.engine import Problem
+    >>> rng = np.random.default_rng(0)
+    >>> X = rng.uniform(0, 1, (30, 1)); y = np.sin(4 * X[:, 0]) + rng.normal(0, 0.1, 30)
+    >>> ladder, plan, root = cx.PolynomialLadder(range(0, 4)), cx.Bootstrap(3), np.random.SeedSequence(0)
+    >>> problem = Problem(ladder, ladder.build(X), X, y, X, y, plan, root, X)
+    >>> [t.index.tolist() for t in run_tallies(problem, plan.resamples(30, root))]
+    [[0, 1, 2]]
+    """
+    yield from _run_chunks(problem, resamples, _chunk_tally, n_jobs, on_done)
+
+
 def run(
     problem: Problem,
     resamples: Sequence[Any],
@@ -1199,6 +1266,14 @@ def run(
     >>> len(outcomes), outcomes[0].residuals.shape[1]
     (3, 4)
     """
+    for outcomes in _run_chunks(problem, resamples, _chunk_task, n_jobs, on_done):
+        yield from outcomes
+
+
+def _run_chunks(
+    problem: Problem, resamples: Sequence[Any], task: Any, n_jobs: int | None, on_done: Any
+) -> Iterator[Any]:
+    """``task(problem, ref, shared, chunk)`` for every chunk, in order, through joblib."""
     from joblib import Parallel, delayed
 
     if not supports(problem):
@@ -1214,15 +1289,15 @@ def run(
         return
     C = ref.n_cols.size
     if second is None:
-        results: Any = (_chunk_task(problem, ref, shared, first),)
+        results: Any = (task(problem, ref, shared, first),)
     else:
         every = itertools.chain((first, second), groups)
-        tasks = (delayed(_chunk_task)(problem, ref, shared, grp) for grp in every)
+        tasks = (delayed(task)(problem, ref, shared, grp) for grp in every)
         results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
-    for outcomes in results:
-        yield from outcomes
-        if on_done is not None:
-            on_done(len(outcomes) * C)
+    for value in results:
+        yield value
+        if on_done is not None:  # a list of outcomes or a tally
+            on_done((len(value) if isinstance(value, list) else value.n_resamples) * C)
 
 
 # -------------------------------------------------------------------- the fit on all data
