@@ -34,6 +34,7 @@ from .engine import Outcome
 __all__ = [
     "PointAccumulator",
     "Tally",
+    "TallyBuilder",
     "block_size",
     "guard_block",
     "guard_overflow",
@@ -235,10 +236,21 @@ def _merge_moments(
     return total if (count.ndim == 2 or cnt.ndim == 2) else total[:, 0].copy()
 
 
-class _TallyBuilder:
+class TallyBuilder:
     """Folds a block's outcomes, one at a time, into a :class:`Tally`.
 
-    ``on_outcome`` (optional) is called with every outcome after the overflow guard.
+    ``on_outcome`` (optional) is called with every outcome after the overflow guard. A block
+    may instead be given as dense arrays (:meth:`add_dense`, for engines that have every
+    residual of a chunk at hand); both routes give identical tallies for identical residuals.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from complexity.engine import Outcome
+    >>> b = TallyBuilder(2, 1)
+    >>> b.add(Outcome(0, 0, np.array([1]), np.array([[2.0]]), np.zeros(1)))
+    >>> b.finish().mean[:, 0].tolist()
+    [0.0, 2.0]
     """
 
     def __init__(
@@ -345,6 +357,74 @@ class _TallyBuilder:
                 failed = list(outcome.failures)
                 fitted[k, failed] = 0.0
                 buf[k, :, failed] = 0.0  # failed capacities are NaN columns
+        sizes = np.array([o.test.size for o in outcomes], dtype=np.int64)
+        self._dense_stats(buf, scored, fitted, sizes)
+
+    def add_dense(
+        self,
+        residuals: NDArray[np.float64],
+        scored: NDArray[np.bool_],
+        index: Sequence[int],
+        replicate: Sequence[int],
+        train_mse: NDArray[np.float64],
+        failures: Sequence[dict[int, str]],
+    ) -> bool:
+        """Fold a whole block given densely; False (nothing done) if it needs the outcome route.
+
+        Parameters
+        ----------
+        residuals : ndarray of shape (K, n_points, n_capacities)
+            Residuals at every point (only the scored ones are used; failed capacities may hold
+            anything).
+        scored : ndarray of bool, shape (K, n_points)
+            Which points each resample scores.
+        index, replicate : sequence of int
+        train_mse : ndarray of shape (K, n_capacities)
+            NaN where the fit failed.
+        failures : sequence of dict
+            Per resample, failed capacity position -> message.
+
+        Only for a fresh builder in dense mode (small problems). Returns False, leaving the
+        builder untouched, when some residual is so large (or NaN) that the overflow guard
+        would act: the caller then adds the outcomes one by one.
+        """
+        K = len(index)
+        if not self.dense or self.index or self.pending or K == 0:
+            return False
+        fitted = np.ones((K, self.C))
+        for k, f in enumerate(failures):
+            if f:
+                fitted[k, list(f)] = 0.0
+        with np.errstate(invalid="ignore"):
+            big = np.max(np.abs(np.where(scored[:, :, None], residuals, 0.0)), axis=1)
+        if not (np.where(fitted > 0, big, 0.0) <= overflow_limit(self.n)).all():
+            return False
+        sizes = scored.sum(axis=1).astype(np.int64)
+        for start in range(0, K, self.slice):
+            part = slice(start, start + self.slice)
+            # unscored points and failed capacities: exact zeros, as the outcome route leaves them
+            keep = scored[part, :, None] & (fitted[part, None, :] > 0)
+            buf = np.where(keep, residuals[part], 0.0)
+            for k in range(start, min(start + self.slice, K)):
+                self.index.append(int(index[k]))
+                self.replicate.append(int(replicate[k]))
+                self.train.append(train_mse[k])
+                if failures[k]:
+                    self.failures.append((int(index[k]), dict(failures[k])))
+            self._dense_stats(
+                buf, scored[part, :, None].astype(np.float64), fitted[part], sizes[part]
+            )
+        return True
+
+    def _dense_stats(
+        self,
+        buf: NDArray[np.float64],
+        scored: NDArray[np.float64],
+        fitted: NDArray[np.float64],
+        sizes: NDArray[np.int64],
+    ) -> None:
+        """Two-pass count, mean and M2 of one dense slice, merged into the block's."""
+        n, C = self.n, self.C
         failed_kc = np.argwhere(fitted == 0.0)
         if failed_kc.size:
             self._per_capacity()
@@ -362,7 +442,6 @@ class _TallyBuilder:
         sq = np.multiply(buf, buf, out=dev)
         self.loss += list(sq.sum(axis=1))
         self.loss2 += list(np.einsum("knc,knc->kc", sq, sq))
-        sizes = np.array([o.test.size for o in outcomes], dtype=np.int64)
         self.n_ok += list(sizes[:, None] * fitted.astype(np.int64))
 
     def finish(self) -> Tally:
@@ -426,12 +505,12 @@ def tallies(
     >>> [t.index.tolist() for t in tallies(outs, 2, 1, 1)]
     [[0, 1], [2, 3], [4]]
     """
-    builder, block = _TallyBuilder(n_points, n_capacities, on_outcome), None
+    builder, block = TallyBuilder(n_points, n_capacities, on_outcome), None
     for outcome in outcomes:
         key = outcome.index // size if size else 0
         if block is not None and key != block:
             yield builder.finish()
-            builder = _TallyBuilder(n_points, n_capacities, on_outcome)
+            builder = TallyBuilder(n_points, n_capacities, on_outcome)
         block = key
         builder.add(outcome)
     yield builder.finish()

@@ -11,7 +11,6 @@ from __future__ import annotations
 import functools
 import numbers
 from collections.abc import Callable, Iterator, Sequence
-from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -42,7 +41,6 @@ def child_seed(root: np.random.SeedSequence, *key: int) -> np.random.SeedSequenc
     return np.random.SeedSequence(root.entropy, spawn_key=(*root.spawn_key, *key))
 
 
-@dataclass(frozen=True)
 class Resample:
     """One training set and the evaluation points scored against it.
 
@@ -55,27 +53,70 @@ class Resample:
         replicate; the folds of one repetition of K-fold share one. Selection stability is counted
         over replicates.
     train : ndarray of int or None
-        Row positions of the training set in X (with repeats for the bootstrap); None for a
-        simulation, whose training set is drawn from ``seed``.
+        Row positions of the training set in X (with repeats for the bootstrap, in sorted order);
+        None for a simulation, whose training set is drawn from ``seed``.
     test : ndarray of int
         Positions of the evaluation points scored against this training set.
+    counts : ndarray of int or None
+        For a bootstrap resample: how many times each row of X was drawn (``train`` and ``test``
+        are made from it on first use).
     root : numpy.random.SeedSequence
         The sweep's root seed.
     key : tuple of int
         Where the resample's own seed sits below the root (see :attr:`seed`).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> r = Resample(0, 0, None, None, np.random.SeedSequence(0), (0,), counts=np.array([2, 0, 1]))
+    >>> r.train.tolist(), r.test.tolist()
+    ([0, 0, 2], [1])
     """
 
-    index: int
-    replicate: int
-    train: NDArray[np.intp] | None
-    test: NDArray[np.intp]
-    root: np.random.SeedSequence = field(repr=False)
-    key: tuple[int, ...]
+    __slots__ = ("_test", "_train", "counts", "index", "key", "replicate", "root")
+
+    def __init__(
+        self,
+        index: int,
+        replicate: int,
+        train: NDArray[np.intp] | None,
+        test: NDArray[np.intp] | None,
+        root: np.random.SeedSequence,
+        key: tuple[int, ...],
+        *,
+        counts: NDArray[np.intp] | None = None,
+    ) -> None:
+        if test is None and counts is None:
+            raise ValueError("a resample needs its test rows or its bootstrap counts")
+        self.index, self.replicate = index, replicate
+        self._train, self._test = train, test
+        self.root, self.key, self.counts = root, key, counts
+
+    @property
+    def train(self) -> NDArray[np.intp] | None:
+        """Training rows (for a bootstrap, the drawn rows in sorted order: a counting sort)."""
+        if self._train is None and self.counts is not None:
+            self._train = np.repeat(np.arange(self.counts.size), self.counts)
+        return self._train
+
+    @property
+    def test(self) -> NDArray[np.intp]:
+        """Evaluation points (for a bootstrap, the rows never drawn: out of bag)."""
+        if self._test is None:
+            assert self.counts is not None
+            self._test = np.flatnonzero(self.counts == 0)
+        return self._test
 
     @property
     def seed(self) -> np.random.SeedSequence:
         """The resample's own seed: the child of ``root`` at ``(STREAM_RESAMPLE, *key)``."""
         return child_seed(self.root, STREAM_RESAMPLE, *self.key)
+
+    def __repr__(self) -> str:
+        return (
+            f"Resample(index={self.index}, replicate={self.replicate}, "
+            f"n_train={None if self.train is None else self.train.size}, n_test={self.test.size})"
+        )
 
 
 class Plan:
@@ -116,15 +157,16 @@ class Plan:
 
 def _bootstrap_batch(n: int, root: np.random.SeedSequence, start: int, stop: int) -> list[Resample]:
     """Bootstrap resamples ``start .. stop - 1``: resample b draws its n rows from its own seed."""
-    out = []
-    for b, rows in enumerate(
-        bootstrap_draws(root, (STREAM_RESAMPLE,), range(start, stop), n), start
-    ):
-        counts = np.bincount(rows, minlength=n)
-        # the drawn rows in sorted order (a counting sort: the same array np.sort gives, faster)
-        train = np.repeat(np.arange(n), counts)
-        out.append(Resample(b, b, train, np.flatnonzero(counts == 0), root, (b,)))
-    return out
+    draws = bootstrap_draws(root, (STREAM_RESAMPLE,), range(start, stop), n)
+    if n * len(draws) <= 1 << 20:  # all counts in one pass
+        rows = np.concatenate(draws) + np.repeat(np.arange(len(draws)) * n, n)
+        counts = np.bincount(rows, minlength=n * len(draws)).reshape(len(draws), n)
+    else:
+        counts = [np.bincount(d, minlength=n) for d in draws]
+    return [
+        Resample(b, b, None, None, root, (b,), counts=counts[k])
+        for k, b in enumerate(range(start, stop))
+    ]
 
 
 class _LazyResamples(Sequence):

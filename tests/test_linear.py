@@ -11,12 +11,14 @@ import math
 import warnings
 
 import numpy as np
+import pandas as pd
 import pytest
 import statsmodels.api as sm
 from _nist import DATA_DIR, NAMES, digits, load, lre
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from sklearn.linear_model import LinearRegression
+from sklearn.model_selection import ShuffleSplit
 from sklearn.pipeline import Pipeline
 
 import complexity as cx
@@ -31,6 +33,7 @@ from complexity.engine.linear import (
     scaled_design,
     user_coefficients,
 )
+from complexity.plans import as_plan
 
 # ---------------------------------------------------------------- NIST StRD
 
@@ -649,3 +652,79 @@ def test_nearly_exact_fit_training_error_is_recomputed_not_cancelled() -> None:
         assert np.all(oa.train_mse[2:] < 1e-28 * np.mean(y**2))
         np.testing.assert_allclose(oa.train_mse[:2], ob.train_mse[:2], rtol=1e-10)
         np.testing.assert_allclose(oa.residuals, ob.residuals, atol=1e-12)
+
+
+def _assert_same_tally(a, b) -> None:
+    for name in ("count", "mean", "m2", "index", "replicate", "loss", "loss2", "n_ok"):
+        np.testing.assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
+    np.testing.assert_array_equal(a.train_mse, b.train_mse)
+    assert a.failures == b.failures
+
+
+@pytest.mark.parametrize(
+    "plan",
+    [
+        cx.Bootstrap(30),
+        cx.CrossValidation(5, n_repeats=3),
+        as_plan(ShuffleSplit(12, train_size=0.5, test_size=0.3, random_state=0)),
+    ],
+    ids=["bootstrap", "kfold", "shuffle-split"],
+)
+@pytest.mark.parametrize("replicated", [False, True], ids=["distinct-x", "7-set-points"])
+def test_tallies_made_in_the_engine_equal_tallies_of_its_outcomes(
+    monkeypatch, plan, replicated
+) -> None:
+    # design decision (accumulate module notes): a block's tally is a pure function of its
+    # outcomes, so the engine's direct tally (dense residuals, no per-resample outcomes) must
+    # equal, bit for bit, the tally of the outcomes it yields (the checkpoint and
+    # keep_predictions route). With 7 set points, high degrees fail on many resamples.
+    from complexity.accumulate import tallies
+
+    monkeypatch.setattr(exact_engine, "_CHUNK_DOUBLES", 2_000)  # several chunks of 10
+    if replicated:
+        X = np.repeat(np.linspace(1e3, 1e3 + 6, 7), 5)[:, None]
+        y = np.sin(X[:, 0] - 1e3) + np.random.default_rng(1).normal(0, 0.1, X.shape[0])
+    else:
+        X, y = _wiggly(40)
+    problem, rs = _problem(cx.PolynomialLadder(range(0, 8)), X, y, plan)
+    size = exact_engine.block_size(problem)
+    fused = list(exact_engine.run_tallies(problem, rs))
+    routed = list(tallies(exact_engine.run(problem, rs), size, X.shape[0], problem.n_capacities))
+    assert len(fused) == len(routed) >= 2
+    for a, b in zip(fused, routed):
+        _assert_same_tally(a, b)
+    if replicated:
+        assert any(t.failures for t in fused)
+
+
+def test_large_problems_tally_outcome_by_outcome_identically() -> None:
+    # above 16,384 residuals per resample the tally folds outcome by outcome (Welford) in both
+    # routes; n_jobs (threads here) must not change a bit
+    from complexity.accumulate import tallies
+
+    X, y = _wiggly(3_000)
+    problem, rs = _problem(cx.PolynomialLadder(range(0, 8)), X, y, cx.Bootstrap(24))
+    size = exact_engine.block_size(problem)
+    fused = list(exact_engine.run_tallies(problem, rs))
+    two = list(exact_engine.run_tallies(problem, rs, n_jobs=2))
+    routed = list(tallies(exact_engine.run(problem, rs), size, 3_000, problem.n_capacities))
+    for a, b, c in zip(fused, routed, two):
+        _assert_same_tally(a, b)
+        _assert_same_tally(a, c)
+
+
+@pytest.mark.parametrize("n", [40, 3_000], ids=["dense", "streamed"])
+def test_sweep_gives_identical_curves_on_every_route(tmp_path, n) -> None:
+    # plain, keep_predictions, checkpointed and two-worker sweeps of the exact engine tally the
+    # same blocks: the curves agree exactly (check_exact)
+    X, y = _wiggly(n)
+    args = (cx.PolynomialLadder(range(0, 7)), X, y)
+    kw = {"plan": cx.Bootstrap(25), "random_state": 3, "engine": "exact"}
+    plain = cx.sweep(*args, **kw)
+    for other in (
+        cx.sweep(*args, keep_predictions=True, **kw),
+        cx.sweep(*args, checkpoint=tmp_path / "ck", **kw),
+        cx.sweep(*args, n_jobs=2, **kw),
+    ):
+        pd.testing.assert_frame_equal(plain.curves, other.curves, check_exact=True)
+        pd.testing.assert_series_equal(plain.stability, other.stability, check_exact=True)

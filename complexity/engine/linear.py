@@ -32,7 +32,7 @@ import numpy as np
 import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 
-from ..accumulate import Tally, tally
+from ..accumulate import Tally, TallyBuilder, tally
 from ..basis import PolynomialBasis, _exact_residuals
 from . import FullFit, Outcome, Problem
 
@@ -926,17 +926,30 @@ def _fail_capacities(
     return out
 
 
-def _data_chunk(
+@dataclass
+class _ChunkFits:
+    """Every capacity fitted on every training set of a chunk of data resamples."""
+
+    pos: NDArray[np.intp]  # row of each resample in the chunk's arrays
+    counts: NDArray[np.float64]  # (S, n) multiplicity of each row in each training set
+    A1: NDArray[np.float64]  # (S, P + 1, C): residuals of all rows = Q0_target @ A1[s]
+    rss: NDArray[np.float64]  # (S, C) training RSS
+    distinct: NDArray[np.intp]  # (S,) distinct training rows
+    pv: NDArray[np.intp]  # (S,) usable basis columns
+    every_row: NDArray[np.float64] | None  # (S, n, C) residuals at every row (small problems)
+
+
+def _chunk_fits(
     problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
-) -> list[Outcome]:
-    """Outcomes for resamples of the observed data (bootstrap, folds, any splitter)."""
+) -> _ChunkFits:
+    """Fit every capacity on every training set of the chunk (data plans)."""
     Q0, S, P = ref.Q0, ref.chunk, ref.pv
     n = Q0.shape[0]
-    X, yc = problem.X, shared["yc"]
+    yc = shared["yc"]
     pos = np.array([r.index % S for r in chunk], dtype=np.intp)
     counts = np.zeros((S, n))
     for r, s in zip(chunk, pos):
-        counts[s] = np.bincount(r.train, minlength=n)
+        counts[s] = r.counts if r.counts is not None else np.bincount(r.train, minlength=n)
     # the one big product: every Gram matrix, Q^T diag(c) y and y^T diag(c) y of the chunk
     moments = _moments(counts, Q0, yc, shared)
     iu = shared["iu"]
@@ -983,24 +996,47 @@ def _data_chunk(
     # prediction - target for every capacity at its test rows
     Q0t = shared["Q0_target"]
     A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
-    k_max = int(ref.n_cols.max())
     # small problems: every row at once (one stacked product), then pick each test set
     every_row = np.matmul(Q0t[None], A1) if n * P * C <= 200_000 else None
+    return _ChunkFits(pos, counts, A1, rss, distinct, pv, every_row)
 
+
+def _chunk_failures(
+    problem: Problem, ref: _Reference, fits: _ChunkFits, r: Any, s: int
+) -> dict[int, str]:
+    """The capacities resample ``r`` (at row ``s``) could not fit, with messages."""
+    if fits.pv[s] >= int(ref.n_cols.max()):
+        return {}
+    X = problem.X
+    assert X is not None
+    return _fail_capacities(
+        problem, ref, int(fits.distinct[s]), int(fits.pv[s]), lambda: X[r.train]
+    )
+
+
+def _data_chunk(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> list[Outcome]:
+    """Outcomes for resamples of the observed data (bootstrap, folds, any splitter)."""
+    return _outcomes(problem, ref, shared, chunk, _chunk_fits(problem, ref, shared, chunk))
+
+
+def _outcomes(
+    problem: Problem,
+    ref: _Reference,
+    shared: dict[str, Any],
+    chunk: Sequence[Any],
+    fits: _ChunkFits,
+) -> list[Outcome]:
+    Q0t, C = shared["Q0_target"], ref.n_cols.size
     out = []
-    for r, s in zip(chunk, pos):
-        failures = (
-            {}
-            if pv[s] >= k_max
-            else _fail_capacities(
-                problem, ref, int(distinct[s]), int(pv[s]), lambda r=r: X[r.train]
-            )
-        )
-        if every_row is not None:
-            residuals = every_row[s, r.test]
+    for r, s in zip(chunk, fits.pos):
+        failures = _chunk_failures(problem, ref, fits, r, s)
+        if fits.every_row is not None:
+            residuals = fits.every_row[s, r.test]
         else:
-            residuals = np.take(Q0t, r.test, axis=0) @ A1[s]
-        train_mse = rss[s] / r.train.size
+            residuals = np.take(Q0t, r.test, axis=0) @ fits.A1[s]
+        train_mse = fits.rss[s] / r.train.size
         if failures:
             bad = _failed_mask(failures, C)
             residuals[:, bad] = np.nan
@@ -1154,12 +1190,72 @@ def _prepare(problem: Problem) -> tuple[_Reference, dict[str, Any]]:
 def _chunk_task(
     problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
 ) -> list[Outcome]:
-    # single-threaded BLAS: the order of every floating-point sum is then fixed by the shapes,
-    # so results do not depend on n_jobs, the backend or the other resamples of the chunk
+    compute = _simulation_chunk if problem.simulated else _data_chunk
+    return _single_blas(compute, problem, ref, shared, chunk)
+
+
+def _chunk_tally(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> Tally:
+    return _single_blas(_tally_chunk, problem, ref, shared, chunk)
+
+
+def _tally_chunk(
+    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
+) -> Tally:
+    """The chunk's tally; small data problems go straight from the dense residuals."""
+    n_points, C = problem.X_eval.shape[0], ref.n_cols.size
+    if problem.simulated:
+        return tally(_simulation_chunk(problem, ref, shared, chunk), n_points, C)
+    fits = _chunk_fits(problem, ref, shared, chunk)
+    if fits.every_row is not None:
+        builder = TallyBuilder(n_points, C)
+        if _add_dense(builder, problem, ref, chunk, fits):
+            return builder.finish()
+    return tally(_outcomes(problem, ref, shared, chunk, fits), n_points, C)
+
+
+def _add_dense(
+    builder: TallyBuilder, problem: Problem, ref: _Reference, chunk: Sequence[Any], fits: _ChunkFits
+) -> bool:
+    """Hand the chunk's residuals at every row to ``builder`` without per-resample outcomes."""
+    assert fits.every_row is not None
+    pos = fits.pos
+    if all(r.counts is not None for r in chunk):  # bootstrap: out of bag = never drawn
+        scored = fits.counts[pos] == 0
+    else:
+        scored = np.zeros((len(chunk), fits.counts.shape[1]), dtype=bool)
+        for k, r in enumerate(chunk):
+            scored[k, r.test] = True
+    failures = [_chunk_failures(problem, ref, fits, r, s) for r, s in zip(chunk, pos)]
+    train_mse = fits.rss[pos] / fits.counts[pos].sum(axis=1)[:, None]
+    C = ref.n_cols.size
+    for k, f in enumerate(failures):
+        if f:
+            train_mse[k, _failed_mask(f, C)] = np.nan
+    return builder.add_dense(
+        fits.every_row[pos],
+        scored,
+        [r.index for r in chunk],
+        [r.replicate for r in chunk],
+        train_mse,
+        failures,
+    )
+
+
+def _single_blas(compute: Any, *args: Any) -> Any:
+    """``compute(*args)`` with BLAS single-threaded.
+
+    The order of every floating-point sum is then fixed by the shapes, so results do not depend
+    on n_jobs, the backend or the other resamples of the chunk.
+    """
+    if _blas_held:  # a thread of the process running the sweep, which holds the setting
+        return compute(*args)
     with _blas_controller().limit(limits=1, user_api="blas"):
-        if problem.simulated:
-            return _simulation_chunk(problem, ref, shared, chunk)
-        return _data_chunk(problem, ref, shared, chunk)
+        return compute(*args)
+
+
+_blas_held = 0  # runs in this process currently holding BLAS at one thread (see _run_chunks)
 
 
 @functools.lru_cache(maxsize=1)
@@ -1188,13 +1284,6 @@ def _group(resamples: Sequence[Any], size: int) -> Iterator[list[Any]]:
         seen.add(r.index)
     if group:
         yield group
-
-
-def _chunk_tally(
-    problem: Problem, ref: _Reference, shared: dict[str, Any], chunk: Sequence[Any]
-) -> Tally:
-    outcomes = _chunk_task(problem, ref, shared, chunk)
-    return tally(outcomes, problem.X_eval.shape[0], problem.n_capacities)
 
 
 def run_tallies(
@@ -1288,16 +1377,27 @@ def _run_chunks(
     if first is None:
         return
     C = ref.n_cols.size
-    if second is None:
-        results: Any = (task(problem, ref, shared, first),)
-    else:
-        every = itertools.chain((first, second), groups)
-        tasks = (delayed(task)(problem, ref, shared, grp) for grp in every)
-        results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
-    for value in results:
-        yield value
-        if on_done is not None:  # a list of outcomes or a tally
-            on_done((len(value) if isinstance(value, list) else value.n_resamples) * C)
+    global _blas_held
+    # BLAS single-threaded for the whole run (a process-wide setting), held here so that tasks
+    # running in threads of this process do not each set and restore it
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        _blas_held += 1
+        try:
+            if second is None:
+                results: Any = (task(problem, ref, shared, first),)
+            else:
+                every = itertools.chain((first, second), groups)
+                tasks = (delayed(task)(problem, ref, shared, grp) for grp in every)
+                # threads by default: numpy releases the GIL in the heavy steps and the shared
+                # arrays (the basis, its products) are not copied for each task; a backend set
+                # with joblib.parallel_config (processes, dask) takes precedence
+                results = Parallel(n_jobs=n_jobs, prefer="threads", return_as="generator")(tasks)
+            for value in results:
+                yield value
+                if on_done is not None:  # a list of outcomes or a tally
+                    on_done((len(value) if isinstance(value, list) else value.n_resamples) * C)
+        finally:
+            _blas_held -= 1
 
 
 # -------------------------------------------------------------------- the fit on all data
