@@ -328,3 +328,27 @@ def check_X_y(
                 f"groups must be 1-D with one label per row of X ({Xa.shape[0]}); got shape {g.shape}."
             )
     return CheckedData(Xa, ya, names, g)
+
+
+def row_groups(X: NDArray[np.float64]) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
+    """Group equal rows of a 2-D float array: ``(label of each row, size of each group)``.
+
+    Rows are compared by value (``-0.0`` equals ``0.0``); the number of distinct rows is
+    ``sizes.size``. One column is compared as numbers, several as the bytes of whole rows
+    (much faster than ``numpy.unique(X, axis=0)``). Labels are in no particular order.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> labels, sizes = row_groups(np.array([[1.0, 2.0], [0.0, 1.0], [1.0, 2.0], [-0.0, 1.0]]))
+    >>> sizes.size, bool(labels[0] == labels[2]), bool(labels[1] == labels[3])
+    (2, True, True)
+    """
+    A = np.ascontiguousarray(np.asarray(X, dtype=np.float64) + 0.0)  # + 0.0: -0.0 -> 0.0
+    if A.shape[0] == 0:
+        return np.zeros(0, dtype=np.intp), np.zeros(0, dtype=np.intp)
+    if A.shape[1] == 0:
+        return np.zeros(A.shape[0], dtype=np.intp), np.array([A.shape[0]], dtype=np.intp)
+    keys = A[:, 0] if A.shape[1] == 1 else A.view(np.dtype((np.void, 8 * A.shape[1]))).ravel()
+    _, labels, sizes = np.unique(keys, return_inverse=True, return_counts=True)
+    return labels.reshape(-1).astype(np.intp), sizes.astype(np.intp)

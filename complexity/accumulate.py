@@ -209,6 +209,11 @@ class Tally:
         return int(self.index.size)
 
 
+def _as_records(a: NDArray[np.float64]) -> NDArray[np.void]:
+    """A C-contiguous (rows, k) float array seen as a 1-D array of k-double records."""
+    return a.view(np.dtype((np.void, a.itemsize * a.shape[1]))).reshape(a.shape[0])
+
+
 def _merge_moments(
     count: NDArray[np.float64],
     mean: NDArray[np.float64],
@@ -316,8 +321,9 @@ class TallyBuilder:
         np.subtract(res, mean, out=step)
         step *= delta
         m2 += step
-        self.mean[idx] = mean
-        self.m2[idx] = m2
+        # rows written back as whole records: about twice as fast as 2-D fancy assignment
+        _as_records(self.mean)[idx] = _as_records(mean)
+        _as_records(self.m2)[idx] = _as_records(m2)
         sq = np.multiply(res, res, out=delta)
         self.loss.append(np.einsum("ij->j", sq))  # column sums (no slow axis-0 reduction)
         self.loss2.append(np.einsum("ij,ij->j", sq, sq))

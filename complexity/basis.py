@@ -252,9 +252,28 @@ def _monomial_matrix_exact(
     """Exact matrix M with monomial coefficients (in original units) = M @ basis coefficients.
 
     Rows and columns are both indexed by ``terms``: column ``c`` is the product Legendre term
-    ``terms[c]``, row ``r`` the monomial with exponents ``terms[r]``.
+    ``terms[c]``, row ``r`` the monomial with exponents ``terms[r]``. ``terms`` is a leading run of
+    :func:`total_degree_terms` (graded), so M is the leading block of the matrix of all terms of
+    ``degree`` (a Legendre term only involves monomials of lower or equal degree), which is built
+    once per domain and degree and kept.
     """
-    per_dim = [_legendre_to_power_exact(degree, float(lo), float(hi)) for lo, hi in domain]
+    full = _all_terms_matrix(
+        len(terms[0]) if terms else 1,
+        tuple((float(lo), float(hi)) for lo, hi in domain),
+        degree,
+    )
+    k = len(terms)
+    if list(terms) != total_degree_terms(len(terms[0]) if terms else 1, degree)[:k]:
+        raise ValueError("terms must be a leading run of total_degree_terms")  # internal use
+    return [list(row[:k]) for row in full[:k]]
+
+
+@functools.lru_cache(maxsize=64)
+def _all_terms_matrix(
+    n_features: int, domain: tuple[tuple[float, float], ...], degree: int
+) -> tuple[tuple[Fraction, ...], ...]:
+    terms = total_degree_terms(n_features, degree)
+    per_dim = [_legendre_to_power_exact(degree, lo, hi) for lo, hi in domain]
     index = {t: i for i, t in enumerate(terms)}
     size = len(terms)
     M = [[Fraction(0)] * size for _ in range(size)]
@@ -267,7 +286,7 @@ def _monomial_matrix_exact(
                     break
             if value != 0:
                 M[index[m]][c] = value
-    return M
+    return tuple(tuple(row) for row in M)
 
 
 def _exact_matvec(

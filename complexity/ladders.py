@@ -19,7 +19,7 @@ from sklearn.dummy import DummyRegressor
 from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
-from ._validation import _short_repr, check_option, repr_from_description
+from ._validation import _short_repr, check_option, repr_from_description, row_groups
 from .basis import LegendreFeatures, n_total_degree_terms
 
 __all__ = ["FeatureLadder", "Ladder", "ParamLadder", "PolynomialLadder"]
@@ -96,7 +96,7 @@ def _check_int_ladder(name: str, values: Any, minimum: int) -> tuple[int, ...]:
 
 
 def _distinct_rows(X: NDArray[np.float64]) -> int:
-    return int(np.unique(X, axis=0).shape[0])
+    return int(row_groups(X)[1].size)
 
 
 class PolynomialLadder(Ladder):
@@ -266,12 +266,6 @@ def _rank_forward_f(
         chosen.append(j)
     rest = [j for j in range(p) if free[j]]
     return np.array(chosen + rest, dtype=np.intp)
-
-
-def _count_distinct_rows(X: NDArray[np.float64]) -> int:
-    """Number of distinct rows, comparing each row's bytes (fast for wide X)."""
-    A = np.ascontiguousarray(X + 0.0)  # + 0.0 turns -0.0 into 0.0
-    return int(np.unique(A.view(np.dtype((np.void, A.dtype.itemsize * A.shape[1])))).size)
 
 
 def _callable_name(func: Any) -> str:
@@ -514,7 +508,7 @@ class FeatureLadder(Ladder):
         if self.estimator is None and k > 0:
             have = X_train.shape[0]
             if have >= k + 1:
-                have = _count_distinct_rows(X_train)
+                have = _distinct_rows(X_train)
             if have < k + 1:
                 return (
                     f"training set has {have} distinct row(s); least squares on {k} predictor(s) "

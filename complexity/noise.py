@@ -32,6 +32,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.spatial import cKDTree
 
+from ._validation import row_groups
+
 __all__ = [
     "NoiseEstimate",
     "difference_variance",
@@ -538,9 +540,7 @@ def _replicates(
     X: NDArray[np.float64], y: NDArray[np.float64], decimals: int | None
 ) -> tuple[float, float] | None:
     keys = X if decimals is None else np.round(X, decimals)
-    keys = keys + 0.0  # -0.0 -> 0.0 so signed zeros group together
-    _, inverse, counts = np.unique(keys, axis=0, return_inverse=True, return_counts=True)
-    inverse = inverse.reshape(-1)
+    inverse, counts = row_groups(keys)  # signed zeros group together
     df = y.size - counts.size
     if df == 0:
         return None

@@ -32,6 +32,7 @@ import numpy as np
 import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 
+from .._validation import row_groups
 from ..accumulate import Tally, TallyBuilder, tally
 from ..basis import PolynomialBasis, _exact_residuals
 from . import FullFit, Outcome, Problem
@@ -1036,7 +1037,7 @@ def _outcomes(
             residuals = fits.every_row[s, r.test]
         else:
             residuals = np.take(Q0t, r.test, axis=0) @ fits.A1[s]
-        train_mse = fits.rss[s] / r.train.size
+        train_mse = fits.rss[s] / fits.counts[s].sum()  # the training set's size
         if failures:
             bad = _failed_mask(failures, C)
             residuals[:, bad] = np.nan
@@ -1139,9 +1140,7 @@ def _simulation_chunk(
 
 def _row_ids(X: NDArray[np.float64]) -> NDArray[np.intp]:
     """Label of each row's distinct value (rows equal across all columns share a label)."""
-    if X.shape[1] == 1:
-        return np.unique(X[:, 0], return_inverse=True)[1].ravel()
-    return np.unique(X, axis=0, return_inverse=True)[1].ravel()
+    return row_groups(X)[0]
 
 
 def _prepare(problem: Problem) -> tuple[_Reference, dict[str, Any]]:
@@ -1553,7 +1552,7 @@ def _fit_full(problem: Problem) -> FullFit:
         },
         index=pd.Index(caps, name=problem.ladder.capacity_name),
     )
-    distinct = int(np.unique(X, axis=0).shape[0])
+    distinct = int(row_groups(X)[1].size)
     from ..ladders import PolynomialLadder
 
     if not isinstance(problem.ladder, PolynomialLadder):  # PolynomialLadder says it up front
