@@ -130,3 +130,63 @@ def test_block_size_is_a_function_of_the_problem_size_only():
     assert block_size(20_000, 16) == 32  # large: folded outcome by outcome, merged per block
     assert all(block_size(n, 5) >= block_size(n * 2, 5) for n in (1, 10, 1000))
     assert block_size(1, 1) <= 256
+
+
+@pytest.mark.parametrize("n", [50, 20_000], ids=["dense", "streamed"])
+def test_residuals_too_large_for_the_sums_become_failures_on_both_tally_routes(n):
+    # the guard's definition (complexity.accumulate.guard_overflow): a capacity whose
+    # |residual|^4 * n_points overflows float64 (max about 1.8e308, common practice) is a failed
+    # fit with a message, never an inf curve; both the dense and the outcome-by-outcome
+    # tally must apply it, without floating-point warnings
+    import warnings
+
+    from complexity.accumulate import guard_overflow, tally
+
+    rng = np.random.default_rng(0)
+    outs = []
+    for b in range(3):
+        test = np.flatnonzero(rng.random(n) < 0.4)
+        res = rng.normal(size=(test.size, 3))
+        if b == 1:
+            res[:, 2] *= 1e80  # (1e80)^4 overflows
+        outs.append(Outcome(b, b, test, res, np.ones(3)))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        t = tally(outs, n, 3)
+    expected = [(o.index, guard_overflow(o, n).failures) for o in outs if o.index == 1]
+    assert t.failures == expected and 2 in expected[0][1]
+    assert np.isfinite(t.loss).all() and np.isfinite(t.mean).all() and np.isfinite(t.m2).all()
+    assert t.n_ok[1].tolist() == [outs[1].test.size, outs[1].test.size, 0]
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.integers(0, 10_000), st.integers(1, 6), st.sampled_from([1.0, 1e75, 1e76, 1e80]))
+def test_block_overflow_guard_equals_the_per_outcome_guard(seed, K, size):
+    # law (the guard's own definition): a capacity fails when |residual|^4 * n_points overflows
+    # float64 (max about 1.8e308, common practice) or a residual is NaN; checking a block at
+    # once must mark exactly what checking each outcome does, with the same messages.
+    from complexity.accumulate import guard_block as _guard_block
+    from complexity.accumulate import guard_overflow as _guard_overflow
+
+    rng = np.random.default_rng(seed)
+    n_points, C = 50, 3
+    outcomes = []
+    for b in range(K):
+        test = np.flatnonzero(rng.random(n_points) < 0.4)
+        res = rng.normal(size=(test.size, C)) * size * rng.choice([1e-80, 1.0], C)
+        failures = {}
+        if test.size and rng.random() < 0.3:
+            res[0, 2] = np.nan  # an unreported NaN prediction
+        if rng.random() < 0.3:
+            res[:, 1] = np.nan
+            failures = {1: "reported"}
+        outcomes.append(Outcome(b, b, test, res, np.ones(C), failures))
+    each = [_guard_overflow(o, n_points) for o in outcomes]
+    block = _guard_block(outcomes, n_points)
+    for a, b in zip(each, block):
+        assert a.failures == b.failures
+        np.testing.assert_array_equal(a.residuals, b.residuals)
+        np.testing.assert_array_equal(a.train_mse, b.train_mse)
+    huge = any(np.any(np.abs(o.residuals[:, [0, 2]]) > 1e78) for o in outcomes)
+    if huge:  # (1e78)^4 overflows float64: the guard must have caught it
+        assert any(len(o.failures) > len(p.failures) for o, p in zip(each, outcomes))

@@ -338,37 +338,3 @@ def test_simulation_needs_no_data_and_describes_observed_data():
     )
     assert r2.metadata["n_samples"] == 5
     pd.testing.assert_frame_equal(r.curves, r2.curves, check_exact=True)
-
-
-@settings(max_examples=30, deadline=None)
-@given(st.integers(0, 10_000), st.integers(1, 6), st.sampled_from([1.0, 1e75, 1e76, 1e80]))
-def test_block_overflow_guard_equals_the_per_outcome_guard(seed, K, size):
-    # law (the guard's own definition): a capacity fails when |residual|^4 * n_points overflows
-    # float64 (max about 1.8e308, common practice) or a residual is NaN; checking a block at
-    # once must mark exactly what checking each outcome does, with the same messages.
-    from complexity.engine import Outcome
-    from complexity.accumulate import guard_block as _guard_block
-    from complexity.accumulate import guard_overflow as _guard_overflow
-
-    rng = np.random.default_rng(seed)
-    n_points, C = 50, 3
-    outcomes = []
-    for b in range(K):
-        test = np.flatnonzero(rng.random(n_points) < 0.4)
-        res = rng.normal(size=(test.size, C)) * size * rng.choice([1e-80, 1.0], C)
-        failures = {}
-        if test.size and rng.random() < 0.3:
-            res[0, 2] = np.nan  # an unreported NaN prediction
-        if rng.random() < 0.3:
-            res[:, 1] = np.nan
-            failures = {1: "reported"}
-        outcomes.append(Outcome(b, b, test, res, np.ones(C), failures))
-    each = [_guard_overflow(o, n_points) for o in outcomes]
-    block = _guard_block(outcomes, n_points)
-    for a, b in zip(each, block):
-        assert a.failures == b.failures
-        np.testing.assert_array_equal(a.residuals, b.residuals)
-        np.testing.assert_array_equal(a.train_mse, b.train_mse)
-    huge = any(np.any(np.abs(o.residuals[:, [0, 2]]) > 1e78) for o in outcomes)
-    if huge:  # (1e78)^4 overflows float64: the guard must have caught it
-        assert any(len(o.failures) > len(p.failures) for o, p in zip(each, outcomes))
