@@ -425,12 +425,13 @@ class TallyBuilder:
             # unscored points and failed capacities: exact zeros, as the outcome route leaves them
             keep = scored[part, :, None] & (fitted[part, None, :] > 0)
             buf = np.where(keep, residuals[part], 0.0)
-            for k in range(start, min(start + self.slice, K)):
-                self.index.append(int(index[k]))
-                self.replicate.append(int(replicate[k]))
-                self.train.append(train_mse[k])
-                if failures[k]:
-                    self.failures.append((int(index[k]), dict(failures[k])))
+            stop = min(start + self.slice, K)
+            self.index += [int(i) for i in index[start:stop]]
+            self.replicate += [int(i) for i in replicate[start:stop]]
+            self.train += list(train_mse[start:stop])
+            self.failures += [
+                (int(index[k]), dict(failures[k])) for k in range(start, stop) if failures[k]
+            ]
             self._dense_stats(
                 buf, scored[part, :, None].astype(np.float64), fitted[part], sizes[part]
             )

@@ -1226,7 +1226,11 @@ def _add_dense(
         scored = np.zeros((len(chunk), fits.counts.shape[1]), dtype=bool)
         for k, r in enumerate(chunk):
             scored[k, r.test] = True
-    failures = [_chunk_failures(problem, ref, fits, r, s) for r, s in zip(chunk, pos)]
+    short = fits.pv[pos] < int(ref.n_cols.max())  # only these can have failed capacities
+    failures = [
+        _chunk_failures(problem, ref, fits, r, s) if lacking else {}
+        for r, s, lacking in zip(chunk, pos, short)
+    ]
     train_mse = fits.rss[pos] / fits.counts[pos].sum(axis=1)[:, None]
     C = ref.n_cols.size
     for k, f in enumerate(failures):
