@@ -28,6 +28,13 @@ Timed, interleaved, ``--repeats`` times each (medians reported):
   (B x n) times the products of the orthonormal basis columns (n x P(P+1)/2, plus Q^T y and y^2),
   single-threaded like the engine): the least work any count-based method does.
 
+Why "<= 2x the floor" is out of reach: besides the Gram matrices, a sweep must predict every
+out-of-bag point of every resample at every capacity (about 7,400 x 16 values per resample at
+n = 20,000) and fold each into per-point running statistics, because the point-level standard
+error and the per-resample stability need per-point second moments and per-resample fourth
+powers that no product of the floor's size yields. That streaming work alone measures several
+times the floor (see ``engine/floor``).
+
 Accuracy: the largest relative difference between the baseline's and the engine's out-of-bag
 residuals, and between the out-of-bag error curves computed from them, over the degrees where the
 baseline's own least-squares problem (centred powers of the scaled x) is well conditioned (2-norm
