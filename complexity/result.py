@@ -23,6 +23,7 @@ from __future__ import annotations
 import html
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -103,7 +104,7 @@ class SweepResult:
     notes: list[str] = field(default_factory=list)
     metadata: dict[str, Any] = field(default_factory=dict)
     predictions: np.ndarray | None = field(default=None, repr=False)
-    coefficient_tables: dict[Any, pd.DataFrame] | None = field(default=None, repr=False)
+    coefficient_tables: Mapping[Any, pd.DataFrame] | None = field(default=None, repr=False)
     inclusion: pd.DataFrame | None = field(default=None, repr=False)
 
     def coefficients(self, capacity: Any) -> pd.DataFrame:

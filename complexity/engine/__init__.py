@@ -10,6 +10,7 @@ consume outcomes one at a time, so no engine ever has to hold all predictions.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -133,4 +134,4 @@ class FullFit:
     failures: dict[int, str] = field(default_factory=dict)
     criteria: Any = None
     diagnostics: Any = None
-    coefficients: dict[Any, Any] | None = None
+    coefficients: Mapping[Any, Any] | None = None

@@ -24,7 +24,7 @@ import functools
 import itertools
 import math
 import numbers
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -1421,11 +1421,32 @@ def _feature_names(problem: Problem, p: int) -> list[str]:
     return ["x"] if p == 1 else [f"x{j}" for j in range(p)]
 
 
+class _LazyTables(Mapping):
+    """Capacity -> coefficient table, each built (exact conversion) on first access, then kept."""
+
+    def __init__(self, keys: list[Any], make: Any) -> None:
+        self._keys, self._make = keys, make
+        self._made: dict[Any, Any] = {}
+
+    def __getitem__(self, key: Any) -> Any:
+        if key not in self._made:
+            if key not in self._keys:
+                raise KeyError(key)
+            self._made[key] = self._make(key)
+        return self._made[key]
+
+    def __iter__(self) -> Iterator[Any]:
+        return iter(self._keys)
+
+    def __len__(self) -> int:
+        return len(self._keys)
+
+
 def _coefficient_tables(
     problem: Problem, design: _LadderDesign, fit: NestedFit, failed: set[int]
-) -> dict[Any, Any] | None:
-    import pandas as pd
-
+) -> Mapping[Any, Any] | None:
+    """Coefficient tables in the user's units, made when first asked for (the exact rational
+    conversion of a high-degree polynomial costs about a millisecond per capacity)."""
     P = design.n_design
     if P > 300:  # exact conversion of hundreds of product terms is slow and not informative
         return None
@@ -1442,29 +1463,36 @@ def _coefficient_tables(
         M[0, 1:] = -design.center / design.scale
         M[np.arange(1, P), np.arange(1, P)] = 1.0 / design.scale
         labels = ["intercept"] + [names[j] for j in design.columns]
-    tables: dict[Any, Any] = {}
-    for c, cap in enumerate(problem.ladder.capacities):
-        if c in failed:
-            continue
-        k = fit.n_columns[c]
-        coef = fit.coef[c, :k]
+    capacities = problem.ladder.capacities
+    position = {cap: c for c, cap in enumerate(capacities) if c not in failed}
+    # only the small per-capacity arrays are kept (not the fit's n-long columns)
+    n_columns, coefs = fit.n_columns, fit.coef.copy()
+    sigma2s, cov_factor = fit.sigma2.copy(), fit.cov_factor.copy()
+
+    def table(cap: Any) -> Any:
+        import pandas as pd
+
+        c = position[cap]
+        k = n_columns[c]
+        coef = coefs[c, :k]
         if design.kind == "polynomial":
             estimate = np.array(list(basis.monomial_coefficients(coef).values()))
         else:
             estimate = M[:k, :k] @ coef
-        sigma2 = float(fit.sigma2[c])
-        MF = M[:k, :k] @ fit.cov_factor[c, :k, :k]
+        sigma2 = float(sigma2s[c])
+        MF = M[:k, :k] @ cov_factor[c, :k, :k]
         se = np.sqrt(sigma2 * np.sum(MF**2, axis=1)) if np.isfinite(sigma2) else np.full(k, np.nan)
-        table = pd.DataFrame(
+        out = pd.DataFrame(
             {"estimate": estimate, "std_error": se}, index=pd.Index(labels[:k], name="term")
         )
         if not np.isfinite(sigma2):
-            table.attrs["note"] = (
+            out.attrs["note"] = (
                 "no residual degrees of freedom (as many coefficients as observations): "
                 "standard errors are undefined"
             )
-        tables[cap] = table
-    return tables
+        return out
+
+    return _LazyTables(list(position), table)
 
 
 def fit_full(problem: Problem) -> FullFit:
