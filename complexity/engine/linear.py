@@ -1047,8 +1047,20 @@ def _outcomes(
 
 
 def _products(Q0: NDArray, yc: NDArray, iu: tuple[NDArray, NDArray]) -> NDArray[np.float64]:
-    """Columns ``q_j q_k`` (j <= k), ``q_j y`` and ``y^2`` of the count-weighted moments."""
-    return np.column_stack([Q0[:, iu[0]] * Q0[:, iu[1]], Q0 * yc[:, None], yc**2])
+    """Columns ``q_j q_k`` (j <= k), ``q_j y`` and ``y^2`` of the count-weighted moments.
+
+    Column order is that of ``iu`` (``numpy.triu_indices``: row by row), written in place.
+    """
+    n, P = Q0.shape
+    m = iu[0].size
+    out = np.empty((n, m + P + 1))
+    start = 0
+    for j in range(P):  # the products q_j q_k for k >= j: one broadcast multiply per j
+        np.multiply(Q0[:, j : j + 1], Q0[:, j:], out=out[:, start : start + P - j])
+        start += P - j
+    np.multiply(Q0, yc[:, None], out=out[:, m : m + P])
+    np.multiply(yc, yc, out=out[:, m + P])
+    return out
 
 
 def _moments(
