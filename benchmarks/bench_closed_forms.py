@@ -55,6 +55,8 @@ from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import PolynomialFeatures, StandardScaler
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+from _common import data, well_conditioned
+
 import complexity as cx
 from complexity.criteria import criteria_table
 from complexity.engine import Problem
@@ -64,14 +66,6 @@ N = 5_000
 DEGREE = 12
 SPEED_TARGET = 1_000.0
 CRITERIA = ["loocv", "gcv", "aic", "aicc", "bic", "cp"]
-
-
-def _data(n: int, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
-    """Synthetic curve: x uniform on [0, 1] (sorted), y = sin(6x) + 0.3x + N(0, 0.2^2)."""
-    rng = np.random.default_rng(seed)
-    X = np.sort(rng.uniform(0.0, 1.0, n))[:, None]
-    y = np.sin(6.0 * X[:, 0]) + 0.3 * X[:, 0] + rng.normal(0.0, 0.2, n)
-    return X, y
 
 
 def _problem(X: np.ndarray, y: np.ndarray, degree: int) -> Problem:
@@ -139,18 +133,6 @@ def _timed(fn, *args):
     return time.perf_counter() - start, value
 
 
-def _well_conditioned(X: np.ndarray, degree: int) -> list[int]:
-    """Degrees whose brute-force problem (centred powers of the scaled x) has cond < 1e5."""
-    good = [0]
-    for d in range(1, degree + 1):
-        powers = PolynomialFeatures(d, include_bias=False).fit_transform(
-            StandardScaler().fit_transform(X)
-        )
-        if np.linalg.cond(powers - powers.mean(axis=0)) < 1e5:
-            good.append(d)
-    return good
-
-
 def _accuracy(fit, points: np.ndarray, brute: np.ndarray, degrees: list[int]):
     """Residual and subset-LOOCV differences between brute force and closed forms."""
     closed = (fit.residuals[:, points] / (1.0 - fit.leverage[:, points])).T  # (k, C)
@@ -171,7 +153,7 @@ def main(argv: list[str] | None = None) -> int:
     if args.brute_points < 1:
         parser.error(f"--brute-points must be >= 1; got {args.brute_points!r}")
 
-    X, y = _data(N)
+    X, y = data(N)
     problem = _problem(X, y, DEGREE)
     points = _points(N, args.brute_points)
     scale = N / points.size
@@ -194,7 +176,7 @@ def main(argv: list[str] | None = None) -> int:
         times["brute"].append(t * scale)
     med = {k: statistics.median(v) for k, v in times.items()}
 
-    good = _well_conditioned(X, DEGREE)
+    good = well_conditioned(X, DEGREE)
     res_diff, loocv_diff = _accuracy(fit, points, brute, good)
     same = np.array_equal(full.criteria[CRITERIA].to_numpy(), table[CRITERIA].to_numpy())
     n_fits = N * (DEGREE + 1)

@@ -61,6 +61,8 @@ from sklearn.preprocessing import PolynomialFeatures, StandardScaler
 from threadpoolctl import threadpool_limits
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+from _common import data, well_conditioned
+
 import complexity as cx
 from complexity.engine import Problem
 from complexity.engine import linear as exact
@@ -70,13 +72,6 @@ CASES = (
     ("n=20,000 deg 0-15 B=200", 20_000, 15, 200, 50.0, 2.0, None),
     ("n=40 deg 0-10 B=2,000", 40, 10, 2_000, 500.0, None, 0.3),
 )
-
-
-def _data(n: int, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
-    rng = np.random.default_rng(seed)
-    X = np.sort(rng.uniform(0.0, 1.0, n))[:, None]
-    y = np.sin(6.0 * X[:, 0]) + 0.3 * X[:, 0] + rng.normal(0.0, 0.2, n)
-    return X, y
 
 
 def _problem(X, y, degree, B, seed=0):
@@ -154,14 +149,7 @@ def _timed(fn, *args):
 
 def _accuracy(X, degree, resamples, base, ours):
     """Largest relative differences over degrees where the baseline design is well conditioned."""
-    good = [0]
-    for d in range(1, degree + 1):
-        # what LinearRegression solves: the powers of the scaled x, centred (no bias column)
-        powers = PolynomialFeatures(d, include_bias=False).fit_transform(
-            StandardScaler().fit_transform(X)
-        )
-        if np.linalg.cond(powers - powers.mean(axis=0)) < 1e5:
-            good.append(d)
+    good = well_conditioned(X, degree)
     res_diff, err_b, err_o = 0.0, [], []
     for b, o in zip(base, ours):
         ob = o.residuals[:, good]
@@ -183,7 +171,7 @@ def main(argv: list[str] | None = None) -> int:
 
     rows = []
     for name, n, degree, B, speed_target, floor_target, seconds_target in CASES:
-        X, y = _data(n)
+        X, y = data(n)
         problem, resamples = _problem(X, y, degree, B)
         sub = resamples[: min(B, args.baseline_resamples)]
         scale = B / len(sub)

@@ -728,3 +728,21 @@ def test_sweep_gives_identical_curves_on_every_route(tmp_path, n) -> None:
     ):
         pd.testing.assert_frame_equal(plain.curves, other.curves, check_exact=True)
         pd.testing.assert_series_equal(plain.stability, other.stability, check_exact=True)
+
+
+def test_coefficient_tables_are_made_on_demand_and_survive_pickling() -> None:
+    # design decision: tables in the user's units are built when first asked for; a result (or
+    # a fitted selector holding one) must still pickle, and give the same tables afterwards
+    import pickle
+
+    X, y = _wiggly(60, low=10.0, width=2.0)
+    result = cx.sweep(cx.PolynomialLadder(range(0, 6)), X, y, plan=cx.Bootstrap(5), random_state=0)
+    tables = result.coefficient_tables
+    assert list(tables) == [0, 1, 2, 3, 4, 5] and len(tables) == 6
+    assert not tables._made  # nothing converted yet
+    first = result.coefficients(3)
+    again = pickle.loads(pickle.dumps(result))
+    pd.testing.assert_frame_equal(again.coefficients(3), first, check_exact=True)
+    pd.testing.assert_frame_equal(again.coefficients(5), result.coefficients(5), check_exact=True)
+    with pytest.raises(ValueError, match="capacity must be one of"):
+        result.coefficients(9)

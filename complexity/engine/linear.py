@@ -1433,32 +1433,65 @@ def _feature_names(problem: Problem, p: int) -> list[str]:
     return ["x"] if p == 1 else [f"x{j}" for j in range(p)]
 
 
-class _LazyTables(Mapping):
-    """Capacity -> coefficient table, each built (exact conversion) on first access, then kept."""
+class _CoefficientTables(Mapping):
+    """Capacity -> coefficient table in the user's units, each made on first access and kept.
 
-    def __init__(self, keys: list[Any], make: Any) -> None:
-        self._keys, self._make = keys, make
+    The exact rational conversion of a high-degree polynomial costs about a millisecond per
+    capacity, so tables are built only when asked for. Holds only small per-capacity arrays
+    (never the fit's n-long columns) and pickles like any plain object.
+    """
+
+    def __init__(
+        self, design: _LadderDesign, labels: list[str], M: NDArray, fit: NestedFit, position: dict
+    ) -> None:
+        self._design, self._labels, self._M, self._position = design, labels, M, position
+        self._n_columns, self._coef = fit.n_columns, fit.coef.copy()
+        self._sigma2, self._cov_factor = fit.sigma2.copy(), fit.cov_factor.copy()
         self._made: dict[Any, Any] = {}
 
-    def __getitem__(self, key: Any) -> Any:
-        if key not in self._made:
-            if key not in self._keys:
-                raise KeyError(key)
-            self._made[key] = self._make(key)
-        return self._made[key]
+    def __getitem__(self, capacity: Any) -> Any:
+        if capacity not in self._made:
+            if capacity not in self._position:
+                raise KeyError(capacity)
+            self._made[capacity] = self._table(self._position[capacity])
+        return self._made[capacity]
 
     def __iter__(self) -> Iterator[Any]:
-        return iter(self._keys)
+        return iter(self._position)
 
     def __len__(self) -> int:
-        return len(self._keys)
+        return len(self._position)
+
+    def _table(self, c: int) -> Any:
+        import pandas as pd
+
+        k, M = self._n_columns[c], self._M
+        coef = self._coef[c, :k]
+        if self._design.kind == "polynomial":
+            basis = self._design.basis
+            assert basis is not None
+            estimate = np.array(list(basis.monomial_coefficients(coef).values()))
+        else:
+            estimate = M[:k, :k] @ coef
+        sigma2 = float(self._sigma2[c])
+        MF = M[:k, :k] @ self._cov_factor[c, :k, :k]
+        se = np.sqrt(sigma2 * np.sum(MF**2, axis=1)) if np.isfinite(sigma2) else np.full(k, np.nan)
+        out = pd.DataFrame(
+            {"estimate": estimate, "std_error": se},
+            index=pd.Index(self._labels[:k], name="term"),
+        )
+        if not np.isfinite(sigma2):
+            out.attrs["note"] = (
+                "no residual degrees of freedom (as many coefficients as observations): "
+                "standard errors are undefined"
+            )
+        return out
 
 
 def _coefficient_tables(
     problem: Problem, design: _LadderDesign, fit: NestedFit, failed: set[int]
 ) -> Mapping[Any, Any] | None:
-    """Coefficient tables in the user's units, made when first asked for (the exact rational
-    conversion of a high-degree polynomial costs about a millisecond per capacity)."""
+    """Coefficient tables in the user's units (made when first asked for)."""
     P = design.n_design
     if P > 300:  # exact conversion of hundreds of product terms is slow and not informative
         return None
@@ -1475,36 +1508,8 @@ def _coefficient_tables(
         M[0, 1:] = -design.center / design.scale
         M[np.arange(1, P), np.arange(1, P)] = 1.0 / design.scale
         labels = ["intercept"] + [names[j] for j in design.columns]
-    capacities = problem.ladder.capacities
-    position = {cap: c for c, cap in enumerate(capacities) if c not in failed}
-    # only the small per-capacity arrays are kept (not the fit's n-long columns)
-    n_columns, coefs = fit.n_columns, fit.coef.copy()
-    sigma2s, cov_factor = fit.sigma2.copy(), fit.cov_factor.copy()
-
-    def table(cap: Any) -> Any:
-        import pandas as pd
-
-        c = position[cap]
-        k = n_columns[c]
-        coef = coefs[c, :k]
-        if design.kind == "polynomial":
-            estimate = np.array(list(basis.monomial_coefficients(coef).values()))
-        else:
-            estimate = M[:k, :k] @ coef
-        sigma2 = float(sigma2s[c])
-        MF = M[:k, :k] @ cov_factor[c, :k, :k]
-        se = np.sqrt(sigma2 * np.sum(MF**2, axis=1)) if np.isfinite(sigma2) else np.full(k, np.nan)
-        out = pd.DataFrame(
-            {"estimate": estimate, "std_error": se}, index=pd.Index(labels[:k], name="term")
-        )
-        if not np.isfinite(sigma2):
-            out.attrs["note"] = (
-                "no residual degrees of freedom (as many coefficients as observations): "
-                "standard errors are undefined"
-            )
-        return out
-
-    return _LazyTables(list(position), table)
+    position = {cap: c for c, cap in enumerate(problem.ladder.capacities) if c not in failed}
+    return _CoefficientTables(design, labels, M, fit, position)
 
 
 def fit_full(problem: Problem) -> FullFit:
