@@ -697,20 +697,28 @@ def test_tallies_made_in_the_engine_equal_tallies_of_its_outcomes(
         assert any(t.failures for t in fused)
 
 
-def test_large_problems_tally_outcome_by_outcome_identically() -> None:
+@pytest.mark.parametrize("rare_point", [False, True], ids=["distinct-x", "rare-set-point"])
+def test_large_problems_tally_outcome_by_outcome_identically(rare_point) -> None:
     # above 16,384 residuals per resample the tally folds outcome by outcome (Welford) in both
-    # routes; n_jobs (threads here) must not change a bit
+    # routes; n_jobs (threads here) must not change a bit. With six set points repeated 500
+    # times and a seventh measured once, about a third of the bootstrap samples miss the
+    # seventh, so degree 6 and up fail on them (the failure path of the Welford fold).
     from complexity.accumulate import tallies
 
-    X, y = _wiggly(3_000)
+    if rare_point:
+        X = np.append(np.repeat(np.arange(6.0), 500), 6.0)[:, None]
+        y = np.cos(X[:, 0]) + np.random.default_rng(2).normal(0, 0.1, X.shape[0])
+    else:
+        X, y = _wiggly(3_000)
     problem, rs = _problem(cx.PolynomialLadder(range(0, 8)), X, y, cx.Bootstrap(24))
     size = exact_engine.block_size(problem)
     fused = list(exact_engine.run_tallies(problem, rs))
     two = list(exact_engine.run_tallies(problem, rs, n_jobs=2))
-    routed = list(tallies(exact_engine.run(problem, rs), size, 3_000, problem.n_capacities))
+    routed = list(tallies(exact_engine.run(problem, rs), size, X.shape[0], problem.n_capacities))
     for a, b, c in zip(fused, routed, two):
         _assert_same_tally(a, b)
         _assert_same_tally(a, c)
+    assert any(t.failures for t in fused) == rare_point
 
 
 @pytest.mark.parametrize("n", [40, 3_000], ids=["dense", "streamed"])
