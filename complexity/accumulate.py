@@ -634,9 +634,12 @@ class PointAccumulator:
         >>> float(acc.mean[0, 0]), float(acc.m2[0, 0])
         (2.0, 2.0)
         """
-        if t.count.ndim == 2 and self._count.ndim == 1:
-            self._count = np.repeat(self._count[:, None], self._n_capacities, axis=1)
-        self._count = _merge_moments(self._count, self.mean, self.m2, t.count, t.mean, t.m2)
+        if self.n_added == 0:  # the first block: merging into zeros would reproduce it exactly
+            self._count, self.mean, self.m2 = t.count.copy(), t.mean.copy(), t.m2.copy()
+        else:
+            if t.count.ndim == 2 and self._count.ndim == 1:
+                self._count = np.repeat(self._count[:, None], self._n_capacities, axis=1)
+            self._count = _merge_moments(self._count, self.mean, self.m2, t.count, t.mean, t.m2)
         self.resample_loss[t.index] = t.loss
         self.resample_n[t.index] = t.n_ok
         # a replicate may appear twice in a block (K-fold): unbuffered adds
