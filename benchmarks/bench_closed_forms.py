@@ -15,9 +15,9 @@ Timed, interleaved, ``--repeats`` times each (medians reported):
   problem, end to end: one QR of the stable polynomial basis gives every degree's residuals and
   hat-matrix diagonal, then ``criteria_table`` gives leave-one-out CV (PRESS / n from
   ``e_i / (1 - h_ii)``), GCV, AIC, AICc, BIC and Mallows' Cp for every degree, no resampling.
-  ``fit_full`` also builds the diagnostics table and the per-degree coefficient tables in the
-  user's units, so this is what a user pays for the criteria. ``fit_full`` limits BLAS to one
-  thread itself; nothing here changes thread settings;
+  ``fit_full`` also builds the diagnostics table, so this is what a user pays for the criteria
+  (the per-degree coefficient tables in the user's units are made only when first asked for).
+  ``fit_full`` limits BLAS to one thread itself; nothing here changes thread settings;
 - ``QR + criteria``: only the nested least-squares fit and ``criteria_table`` (no diagnostics, no
   coefficient tables), through the same functions ``fit_full`` calls;
 - ``sweep`` (context only, no target): ``cx.sweep(..., plan=Bootstrap(2), engine="exact")`` end
