@@ -50,12 +50,32 @@ W368 = 0.368
 def _per_point(acc: PointAccumulator, c: int, min_count: int) -> dict[str, NDArray[np.float64]]:
     n = acc.count[:, c]
     keep = n >= min_count
-    B = n[keep].astype(np.float64)
-    mean = acc.mean[keep, c]
-    m2 = acc.m2[keep, c]
+    return _point_values(n[keep], acc.mean[keep, c], acc.m2[keep, c])
+
+
+def _point_values(
+    n: NDArray[np.float64], mean: NDArray[np.float64], m2: NDArray[np.float64]
+) -> dict[str, NDArray[np.float64]]:
+    """Per-point test error ``e``, variance ``s2``, mean residual and count (any leading shape)."""
+    B = np.asarray(n, dtype=np.float64)
     e = mean**2 + m2 / B
     s2 = np.divide(m2, B - 1, out=np.full_like(m2, np.nan), where=B > 1)
     return {"e": e, "s2": s2, "mean": mean, "B": B}
+
+
+def _all_capacities(acc: PointAccumulator, min_count: int) -> list[dict[str, NDArray[np.float64]]]:
+    """``_per_point`` for every capacity at once when all capacities count alike (no failures).
+
+    The kept points are then the same for every capacity: one selection of rows, and each
+    capacity's values as a contiguous row (so its sums are the same pairwise sums).
+    """
+    n = acc.count[:, 0]
+    keep = n >= min_count
+    every = bool(keep.all())  # the usual case: no selection to copy
+    mean_t = np.ascontiguousarray((acc.mean if every else acc.mean[keep]).T)
+    m2_t = np.ascontiguousarray((acc.m2 if every else acc.m2[keep]).T)
+    values = _point_values(np.broadcast_to(n[keep], mean_t.shape), mean_t, m2_t)
+    return [{k: v[c] for k, v in values.items()} for c in range(mean_t.shape[0])]
 
 
 def _split_se(loss: NDArray[np.float64], n: NDArray[np.int64]) -> float:
@@ -163,9 +183,16 @@ def curves_table(
     simulated = plan_kind == "simulation"
     notes: list[str] = []
     rows = []
+    uniform = acc.count.strides[1] == 0  # one count per point (no fit failed)
+    if uniform:
+        decomposable_all = int((acc.count[:, 0] >= 2).sum()) >= 2
+        every = _all_capacities(acc, 2 if decomposable_all else 1)
     for c in range(len(capacities)):
-        decomposable = int((acc.count[:, c] >= 2).sum()) >= 2
-        pp = _per_point(acc, c, 2 if decomposable else 1)
+        if uniform:
+            decomposable, pp = decomposable_all, every[c]
+        else:
+            decomposable = int((acc.count[:, c] >= 2).sum()) >= 2
+            pp = _per_point(acc, c, 2 if decomposable else 1)
         n_pts = pp["e"].size
         row: dict[str, Any] = {}
         if train_mse is not None:
