@@ -1,8 +1,10 @@
 """Engines: fit every capacity of a ladder on every training set of a plan.
 
-Both engines take a :class:`Problem` and a list of :class:`~complexity.plans.Resample` and yield one
-:class:`Outcome` per resample, in resample order, whatever the number of workers. The accumulators
-consume outcomes one at a time, so no engine ever has to hold all predictions.
+Both engines take a :class:`Problem` and a list of :class:`~complexity.plans.Resample`. ``run``
+yields one :class:`Outcome` per resample, in resample order, whatever the number of workers;
+``run_tallies`` yields one :class:`~complexity.accumulate.Tally` per block of ``block_size(problem)``
+consecutive resamples (made where the outcomes are), equal bit for bit to the tallies of ``run``'s
+outcomes grouped the same way. No engine ever has to hold all predictions.
 
 - :mod:`complexity.engine.generic`: clone and fit any scikit-learn estimator, through joblib.
 - :mod:`complexity.engine.linear`: least-squares ladders, every capacity from one factorization.
