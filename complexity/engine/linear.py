@@ -815,13 +815,17 @@ def block_size(problem: Problem) -> int:
     >>> block_size(problem)
     1000
     """
-    if problem.simulated:
-        plan = problem.plan
-        rows = (plan.design if plan.design is not None else problem.design_X).shape[0]
-    else:
+    return _chunk_size(_reference_rows(problem).shape[0], problem.n_capacities)
+
+
+def _reference_rows(problem: Problem) -> NDArray[np.float64]:
+    """The x rows the reference factorisation is made on: the data, or a simulation's fixed
+    design (else its pilot draw with ``x_eval``)."""
+    if not problem.simulated:
         assert problem.X is not None
-        rows = problem.X.shape[0]
-    return _chunk_size(rows, problem.n_capacities)
+        return problem.X
+    plan = problem.plan
+    return plan.design if plan.design is not None else problem.design_X
 
 
 def _capacity_label(problem: Problem, c: int) -> str:
@@ -938,6 +942,7 @@ class _ChunkFits:
     distinct: NDArray[np.intp]  # (S,) distinct training rows
     pv: NDArray[np.intp]  # (S,) usable basis columns
     every_row: NDArray[np.float64] | None  # (S, n, C) residuals at every row (small problems)
+    short: NDArray[np.bool_]  # (S,) fewer usable columns than the top capacity: some fits fail
 
 
 def _chunk_fits(
@@ -999,14 +1004,15 @@ def _chunk_fits(
     A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
     # small problems: every row at once (one stacked product), then pick each test set
     every_row = np.matmul(Q0t[None], A1) if n * P * C <= 200_000 else None
-    return _ChunkFits(pos, counts, A1, rss, distinct, pv, every_row)
+    short = pv < int(ref.n_cols.max())
+    return _ChunkFits(pos, counts, A1, rss, distinct, pv, every_row, short)
 
 
 def _chunk_failures(
     problem: Problem, ref: _Reference, fits: _ChunkFits, r: Any, s: int
 ) -> dict[int, str]:
     """The capacities resample ``r`` (at row ``s``) could not fit, with messages."""
-    if fits.pv[s] >= int(ref.n_cols.max()):
+    if not fits.short[s]:
         return {}
     X = problem.X
     assert X is not None
@@ -1183,7 +1189,7 @@ def _prepare(problem: Problem) -> tuple[_Reference, dict[str, Any]]:
         return ref, shared
     plan = problem.plan
     fixed = plan.design is not None
-    Z_ref = design(plan.design if fixed else problem.design_X)
+    Z_ref = design(_reference_rows(problem))
     ref = _reference(problem, Z_ref, design)
     shared["fixed"] = fixed
     shared["q_eval"] = design(problem.X_eval)[:, : ref.pv] @ ref.R0inv
@@ -1238,11 +1244,7 @@ def _add_dense(
         scored = np.zeros((len(chunk), fits.counts.shape[1]), dtype=bool)
         for k, r in enumerate(chunk):
             scored[k, r.test] = True
-    short = fits.pv[pos] < int(ref.n_cols.max())  # only these can have failed capacities
-    failures = [
-        _chunk_failures(problem, ref, fits, r, s) if lacking else {}
-        for r, s, lacking in zip(chunk, pos, short)
-    ]
+    failures = [_chunk_failures(problem, ref, fits, r, s) for r, s in zip(chunk, pos)]
     train_mse = fits.rss[pos] / fits.counts[pos].sum(axis=1)[:, None]
     C = ref.n_cols.size
     for k, f in enumerate(failures):
