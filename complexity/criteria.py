@@ -3,15 +3,24 @@
 All functions are pure and vectorised over capacities: ``rss`` and ``n_params`` are arrays with
 one entry per capacity, ``residuals`` and ``leverage`` have shape (n_capacities, n_samples).
 
-Convention (one, used everywhere; METHODS.md section 6): the Gaussian log-likelihood is the full
-profile likelihood ``llf = -(n/2) [log(2 pi) + log(RSS/n) + 1]``, the parameter count ``p`` is
-the rank of the design (intercept included), and the noise variance is NOT counted. These are
-the values of statsmodels ``OLS(...).fit().aic`` / ``.bic`` and of its ``info_criteria('aicc')``.
-Only differences between capacities matter; the absolute level depends on the convention.
+Conventions (METHODS.md §6). The Gaussian log-likelihood is the full profile likelihood
+``llf = -(n/2) [log(2 pi) + log(RSS/n) + 1]`` and the parameter count ``p`` is the rank of the
+design (intercept included). AIC and BIC do not count the noise variance: they are the values of
+statsmodels ``OLS(...).fit().aic`` / ``.bic``. AICc is the regression form of its source, Hurvich &
+Tsai (1989), ``n log(RSS/n) + n (n + p) / (n - p - 2)``: it counts the noise variance (``k = p + 1``)
+and drops the constant ``n log(2 pi)``. Only differences between capacities matter, and only
+within one criterion; the absolute level depends on the convention.
 
 Undefined values are never NaN: a criterion that cannot be computed is ``+inf`` (so no rule picks
 that capacity) and the reason is documented per function. ``RSS = 0`` (an exact fit) gives
-``aic = bic = aicc = -inf`` as in statsmodels.
+``aic = bic = aicc = -inf`` in the single-criterion functions, as in statsmodels.
+
+Exact fits. Computed in floating point, the RSS of a model that fits the data exactly is not 0 but
+rounding noise, and the criteria would rank that noise (every criterion then favours the largest
+capacity). :func:`criteria_table`, given ``y``, counts an RSS at or below the rounding level of
+:func:`rounding_level_rss` as zero: it flags the capacity in the ``exact_fit`` column and
+evaluates every criterion there at the rounding level itself, the largest RSS that rounding alone
+can produce. The penalties then decide among the exact capacities, and the simplest one wins.
 """
 
 from __future__ import annotations
@@ -35,10 +44,13 @@ __all__ = [
     "loocv_defined",
     "mallows_cp",
     "noise_variance_from_largest",
+    "rounding_level_rss",
 ]
 
 #: leverage above ``1 - LEVERAGE_TOL`` means the point is interpolated: leave-one-out undefined
 LEVERAGE_TOL = 1e-10
+
+_EPS = float(np.finfo(np.float64).eps)
 
 
 def _short(value: Any, limit: int = 80) -> str:
@@ -141,23 +153,41 @@ def bic(rss: ArrayLike, n_params: ArrayLike, n: int) -> NDArray[np.float64]:
 
 
 def aicc(rss: ArrayLike, n_params: ArrayLike, n: int) -> NDArray[np.float64]:
-    """Small-sample AIC ``-2 llf + 2 p n / (n - p - 1)``.
+    """Small-sample AIC of Hurvich & Tsai (1989), ``n log(RSS/n) + n (n + p) / (n - p - 2)``.
 
-    The form of statsmodels ``info_criteria('aicc')`` (p = rank, sigma^2 not counted).
-    ``+inf`` where ``n - p - 1 <= 0`` (undefined), as statsmodels returns, even when RSS = 0.
+    The regression form of METHODS.md §6. It counts the noise variance as a parameter: it equals
+    the generic ``AICc = -2 llf + 2 k n / (n - k - 1)`` with ``k = p + 1`` minus the constant
+    ``n log(2 pi)``, i.e. statsmodels ``info_criteria('aicc', dk_params=1) - n log(2 pi)``.
+    (It is not on the scale of :func:`aic`, which keeps the constant and does not count the
+    variance; compare AICc values only with each other.)
+
+    Parameters
+    ----------
+    rss : array-like of shape (n_capacities,)
+    n_params : array-like of shape (n_capacities,)
+        Rank of each design, intercept included.
+    n : int
+
+    Returns
+    -------
+    ndarray of shape (n_capacities,)
+        ``+inf`` where ``n - p - 2 <= 0``, where the criterion is undefined (so no rule picks it),
+        even when RSS = 0; ``-inf`` where RSS = 0 otherwise.
 
     Examples
     --------
-    >>> aicc([3.6, 1.0], [2, 4], 5).round(6)
-    array([22.546865,       inf])
+    >>> aicc([3.6, 1.0], [2, 3], 5).round(6)          # METHODS.md §6 worked check
+    array([33.35748,      inf])
     """
     n = _check_n(n)
     r, p = _rss_p(rss, n_params, n)
-    room = n - p - 1.0
+    room = n - p - 2.0
     ok = room > 0
-    pen = 2.0 * p * n / np.where(ok, room, 1.0)
-    # undefined (n - p - 1 <= 0) wins over an exact fit's -inf likelihood term
-    return np.where(ok, -2.0 * gaussian_loglik(r, n) + pen, np.inf)
+    pen = n * (n + p) / np.where(ok, room, 1.0)
+    with np.errstate(divide="ignore"):
+        fit_term = n * np.log(r / n)
+    # undefined (n - p - 2 <= 0) wins over an exact fit's -inf likelihood term
+    return np.where(ok, fit_term + pen, np.inf)
 
 
 def gcv(rss: ArrayLike, n_params: ArrayLike, n: int) -> NDArray[np.float64]:
@@ -322,6 +352,74 @@ def fixed_design_variance(n_params: ArrayLike, n: int, sigma2: float) -> NDArray
     return _check_sigma2(sigma2) * p / n
 
 
+def _condition(condition: ArrayLike | None, size: int) -> NDArray[np.float64]:
+    if condition is None:
+        return np.ones(size)
+    kappa = np.atleast_1d(np.asarray(condition, dtype=np.float64))
+    if kappa.ndim != 1 or kappa.size != size:
+        raise ValueError(
+            f"condition must hold one condition number per capacity ({size}); "
+            f"got shape {kappa.shape}."
+        )
+    if not (np.isfinite(kappa) & (kappa >= 1.0)).all():
+        raise ValueError(
+            "condition must hold finite 2-norm condition numbers >= 1 (drop rank-deficient "
+            f"capacities first); got {_short(kappa)}."
+        )
+    return kappa
+
+
+def rounding_level_rss(y: ArrayLike, condition: ArrayLike | None = None) -> NDArray[np.float64]:
+    """Largest RSS that float64 rounding alone can produce when a model fits ``y`` exactly.
+
+    ``tau_k = (sqrt(n) eps (1 + 2 kappa_k))^2 sum_i y_i^2`` for each capacity ``k``, with ``eps``
+    the float64 machine epsilon and ``kappa_k`` the 2-norm condition number of the design the fit
+    was computed with. An RSS ``<= tau_k`` is indistinguishable from 0: the data fit exactly.
+
+    Parameters
+    ----------
+    y : array-like of shape (n_samples,)
+        The response the models were fitted to.
+    condition : array-like of shape (n_capacities,), optional
+        Condition number of each capacity's design (default 1: an orthonormal design).
+
+    Returns
+    -------
+    ndarray of shape (n_capacities,)
+
+    Notes
+    -----
+    Why this level. A Householder least-squares solve returns the exact solution of a problem
+    whose data are perturbed by a modest multiple of ``eps`` (the backward error grows like
+    ``sqrt(n) eps`` in practice, ``n eps`` in the worst case; METHODS.md §9 uses ``n eps`` for
+    rank loss). To first order such a perturbation moves the residual vector by at most
+    ``delta (1 + 2 kappa) ||y||`` (the least-squares perturbation bound, Golub & Van Loan 2013,
+    ch. 5; from memory). The scale is the uncentred ``sum y^2``, not ``n var(y)``: the
+    factorisation works on ``y`` including its mean, so the rounding is relative to ``||y||``.
+
+    Measured (float64, the library's stable polynomial basis, kappa 3 to 4.5): NIST Wampler1 and
+    Wampler2, exact quintics with n = 21, have ``RSS / sum y^2 <= 1e-31`` from degree 5 on,
+    about 500 times below this level (5e-29); the least noisy NIST sets stay far above it
+    (Pontius 2e-8, Filip 1e-5 at their certified degrees).
+
+    Examples
+    --------
+    >>> rounding_level_rss(np.ones(4)) / 4 / np.finfo(float).eps ** 2  # (sqrt(4) (1 + 2))^2
+    array([36.])
+    >>> rounding_level_rss([3.0, 4.0], [1.0, 10.0]).shape
+    (2,)
+    """
+    ya = np.asarray(y, dtype=np.float64)
+    if ya.ndim != 1 or ya.size == 0:
+        raise ValueError(f"y must be a non-empty 1-D array of responses; got shape {ya.shape}.")
+    if not np.isfinite(ya).all():
+        raise ValueError(f"y must be finite; got {_short(ya)}.")
+    size = 1 if condition is None else np.atleast_1d(np.asarray(condition)).size
+    kappa = _condition(condition, size)
+    scale = float(np.sum(ya**2))
+    return (np.sqrt(ya.size) * _EPS * (1.0 + 2.0 * kappa)) ** 2 * scale
+
+
 def criteria_table(
     residuals: ArrayLike,
     leverage: ArrayLike,
@@ -330,6 +428,8 @@ def criteria_table(
     capacities: ArrayLike | None = None,
     sigma2: float | None = None,
     rss: ArrayLike | None = None,
+    y: ArrayLike | None = None,
+    condition: ArrayLike | None = None,
 ) -> pd.DataFrame:
     """Every criterion for every capacity, as a DataFrame indexed by ``capacity``.
 
@@ -345,16 +445,27 @@ def criteria_table(
         Index values (default 0, 1, ...).
     sigma2 : float, optional
         Noise variance for ``cp`` and ``fixed_design_variance`` (default: from the largest
-        model, :func:`noise_variance_from_largest`).
+        model, :func:`noise_variance_from_largest`, after the exact-fit guard below).
     rss : array-like of shape (n_capacities,), optional
         Residual sums of squares if computed more accurately elsewhere (e.g. tail sums of a QR);
         default ``sum(residuals**2)``.
+    y : array-like of shape (n_samples,), optional
+        The response. Turns on the exact-fit guard: a capacity whose RSS is at most
+        :func:`rounding_level_rss` (``tau_k``) fits exactly, ``exact_fit`` is True there, and
+        its criteria are evaluated at the rounding level: ``gcv, aic, aicc, bic, cp`` with
+        ``RSS = tau_k``, ``loocv`` with ``tau_k / (n min_i (1 - h_ii)^2)``, the largest
+        leave-one-out error residuals of squared norm ``tau_k`` can give (the true value of an
+        exact fit is 0). The ``rss`` column keeps the computed values. Without ``y`` no capacity
+        is flagged and the criteria rank whatever RSS they are given, rounding noise included.
+    condition : array-like of shape (n_capacities,), optional
+        2-norm condition number of each capacity's design, for the rounding level (default 1).
 
     Returns
     -------
     pandas.DataFrame
-        Columns ``n_params, rss, loocv, loocv_defined, gcv, aic, aicc, bic, cp,
-        fixed_design_variance``; ``attrs["sigma2"]`` holds the noise variance used.
+        Columns ``n_params, rss, exact_fit, loocv, loocv_defined, gcv, aic, aicc, bic, cp,
+        fixed_design_variance``; ``attrs["sigma2"]`` holds the noise variance used and
+        ``attrs["rounding_level_rss"]`` the level ``tau_k`` per capacity (None without ``y``).
 
     Examples
     --------
@@ -368,6 +479,19 @@ def criteria_table(
     [3.125, 2.0, 4.1429]
     >>> t["cp"].round(4).tolist()
     [3.0345, 1.1724, 3.0]
+
+    Data on a straight line fit exactly from the line on: the guard counts the rounding-level
+    RSS as zero, so every criterion picks the line, not the noise of the larger model.
+
+    >>> y = 1.0 + 0.1 * x
+    >>> fit = nested_least_squares(np.column_stack([np.ones(5), x, x**2]), y,
+    ...                            n_columns_per_capacity=[1, 2, 3])
+    >>> t = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss, y=y,
+    ...                    condition=fit.condition)
+    >>> t["exact_fit"].tolist()
+    [False, True, True]
+    >>> [int(t[c].to_numpy().argmin()) for c in ("loocv", "gcv", "aic", "bic", "cp")]
+    [1, 1, 1, 1, 1]
     """
     e, h = _leverage_residuals(residuals, leverage)
     n = e.shape[1]
@@ -379,26 +503,50 @@ def criteria_table(
     r = np.sum(e**2, axis=1) if rss is None else _vector(rss, "rss")
     if r.size != p.size:
         raise ValueError(f"rss has {r.size} entries but there are {p.size} capacities.")
-    s2 = noise_variance_from_largest(r, p, n) if sigma2 is None else _check_sigma2(sigma2)
     index = pd.Index(
         np.arange(p.size) if capacities is None else np.asarray(capacities), name="capacity"
     )
     if len(index) != p.size:
         raise ValueError(f"capacities has {len(index)} entries but there are {p.size} capacities.")
+    cv = loocv(e, h)
+    defined = loocv_defined(h)
+    r_used = r
+    level = None
+    exact = np.zeros(p.size, dtype=bool)
+    if y is not None:
+        ya = np.asarray(y, dtype=np.float64)
+        if ya.ndim != 1 or ya.size != n:
+            raise ValueError(
+                f"y must be 1-D with one value per sample ({n}, as residuals); "
+                f"got shape {ya.shape}."
+            )
+        level = rounding_level_rss(ya, _condition(condition, p.size))
+        exact = r <= level
+        # y = 0 gives level 0: keep the floor positive so the criteria stay finite
+        floor = np.maximum(level, np.finfo(np.float64).tiny)
+        r_used = np.where(exact, floor, r)
+        with np.errstate(divide="ignore"):
+            worst = floor / (n * np.min(1.0 - h, axis=1) ** 2)
+        cv = np.where(exact & defined, worst, cv)
+    elif condition is not None:
+        _condition(condition, p.size)
+    s2 = noise_variance_from_largest(r_used, p, n) if sigma2 is None else _check_sigma2(sigma2)
     table = pd.DataFrame(
         {
             "n_params": p.astype(int),
             "rss": r,
-            "loocv": loocv(e, h),
-            "loocv_defined": loocv_defined(h),
-            "gcv": gcv(r, p, n),
-            "aic": aic(r, p, n),
-            "aicc": aicc(r, p, n),
-            "bic": bic(r, p, n),
-            "cp": mallows_cp(r, p, n, sigma2=s2),
+            "exact_fit": exact,
+            "loocv": cv,
+            "loocv_defined": defined,
+            "gcv": gcv(r_used, p, n),
+            "aic": aic(r_used, p, n),
+            "aicc": aicc(r_used, p, n),
+            "bic": bic(r_used, p, n),
+            "cp": mallows_cp(r_used, p, n, sigma2=s2),
             "fixed_design_variance": fixed_design_variance(p, n, s2),
         },
         index=index,
     )
     table.attrs["sigma2"] = s2
+    table.attrs["rounding_level_rss"] = level
     return table

@@ -39,43 +39,30 @@ from numpy.typing import NDArray
 
 from .accumulate import PointAccumulator
 from .ladders import capacity_index
+from .plans import SplitLayout
 
-__all__ = ["bootstrap_632", "curves_table", "no_information_error", "replicate_curves"]
+__all__ = [
+    "bootstrap_632",
+    "curves_table",
+    "no_information_error",
+    "relation",
+    "replicate_errors",
+]
 
 #: weights of the .632 estimators, rounded as in Efron (1983) and Efron & Tibshirani (1997)
 W632 = 0.632
 W368 = 0.368
 
 
-def _per_point(acc: PointAccumulator, c: int, min_count: int) -> dict[str, NDArray[np.float64]]:
-    n = acc.count[:, c]
-    keep = n >= min_count
-    return _point_values(n[keep], acc.mean[keep, c], acc.m2[keep, c])
-
-
 def _point_values(
     n: NDArray[np.float64], mean: NDArray[np.float64], m2: NDArray[np.float64]
 ) -> dict[str, NDArray[np.float64]]:
-    """Per-point test error ``e``, variance ``s2``, mean residual and count (any leading shape)."""
+    """Per-point test error ``e``, raw spread ``s2``, mean residual and count (any leading shape)."""
     B = np.asarray(n, dtype=np.float64)
-    e = mean**2 + m2 / B
+    with np.errstate(invalid="ignore", divide="ignore"):
+        e = mean**2 + m2 / B
     s2 = np.divide(m2, B - 1, out=np.full_like(m2, np.nan), where=B > 1)
     return {"e": e, "s2": s2, "mean": mean, "B": B}
-
-
-def _all_capacities(acc: PointAccumulator, min_count: int) -> list[dict[str, NDArray[np.float64]]]:
-    """``_per_point`` for every capacity at once when all capacities count alike (no failures).
-
-    The kept points are then the same for every capacity: one selection of rows, and each
-    capacity's values as a contiguous row (so its sums are the same pairwise sums).
-    """
-    n = acc.count[:, 0]
-    keep = n >= min_count
-    every = bool(keep.all())  # the usual case: no selection to copy
-    mean_t = np.ascontiguousarray((acc.mean if every else acc.mean[keep]).T)
-    m2_t = np.ascontiguousarray((acc.m2 if every else acc.m2[keep]).T)
-    values = _point_values(np.broadcast_to(n[keep], mean_t.shape), mean_t, m2_t)
-    return [{k: v[c] for k, v in values.items()} for c in range(mean_t.shape[0])]
 
 
 def _split_se(loss: NDArray[np.float64], n: NDArray[np.int64]) -> float:
@@ -85,6 +72,137 @@ def _split_se(loss: NDArray[np.float64], n: NDArray[np.int64]) -> float:
         return float("nan")
     scores = loss[ok] / n[ok]
     return float(np.std(scores, ddof=1) / np.sqrt(ok.sum()))
+
+
+def _pass_se(
+    loss: NDArray[np.float64], n: NDArray[np.int64], replicate_of: NDArray[np.intp]
+) -> float:
+    """Fold-level SE of one K-fold pass, root-mean-square over the passes (METHODS.md §4).
+
+    Each pass ``g`` gives ``s(CV_gk) / sqrt(K_g)``; repeating passes does not shrink this, because
+    the passes share the same data (what repeating removes is only the partition's own noise).
+    """
+    se2 = []
+    for g in np.unique(replicate_of):
+        rows = replicate_of == g
+        se = _split_se(loss[rows], n[rows])
+        if np.isfinite(se):
+            se2.append(se**2)
+    return float(np.sqrt(np.mean(se2))) if se2 else float("nan")
+
+
+def _corrected_se(
+    loss: NDArray[np.float64], n: NDArray[np.int64], train_size: float, test_size: float
+) -> float:
+    """Nadeau & Bengio (2003) corrected SE of the mean of J random-split scores (METHODS.md §4)."""
+    ok = n > 0
+    J = int(ok.sum())
+    if J < 2:
+        return float("nan")
+    scores = loss[ok] / n[ok]
+    return float(np.sqrt((1.0 / J + test_size / train_size) * np.var(scores, ddof=1)))
+
+
+def _test_error_se(
+    acc: PointAccumulator, c: int, e: NDArray[np.float64], layout: SplitLayout
+) -> float:
+    """The standard error of ``test_mse`` that the one-standard-error rule uses (see the notes)."""
+    loss, n = acc.resample_loss[:, c], acc.resample_n[:, c]
+    if layout.kind == "simulation":
+        return _split_se(loss, n)
+    if layout.kind == "bootstrap":
+        return float(np.std(e, ddof=1) / np.sqrt(e.size)) if e.size > 1 else float("nan")
+    if layout.partition and layout.replicate_of is not None:
+        return _pass_se(loss, n, layout.replicate_of)
+    return _corrected_se(loss, n, layout.train_size, layout.test_size)
+
+
+def _out_of_sample_leverage(h: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``h / (1 - h)``: variance of the fit without row i at x_i, in units of sigma² (METHODS §1)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = h / (1.0 - h)
+    return np.where((h < 1.0 - 1e-10) & np.isfinite(q), q, np.inf)
+
+
+def _parts(
+    pp: dict[str, NDArray[np.float64]],
+    q: NDArray[np.float64] | None,
+    noise: float,
+    layout: SplitLayout,
+) -> tuple[float, float, str]:
+    """Variance at the stated training size and the out-of-bag excess of one capacity.
+
+    ``pp`` holds the per-point values of the points scored at least once; ``q`` the out-of-sample
+    leverages of the full-data least-squares fit at those points (None for other ladders).
+    Returns ``(variance, oob_excess, reason)``; ``reason`` says why a NaN variance is NaN.
+    """
+    two = pp["B"] >= 2
+    s2 = pp["s2"][two]
+    if layout.kind == "simulation":
+        return (float(np.mean(s2)), 0.0, "") if s2.size >= 2 else (np.nan, 0.0, _ONCE)
+    # Var(fbar_i): the variance, from data set to data set, of a point's average out-of-sample
+    # prediction. For least squares the average is close to the fit on the other n - 1 rows,
+    # whose variance given x is sigma² h_i / (1 - h_i) (Gauss-Markov, METHODS.md §1).
+    spread_of_mean = None if q is None else noise * q
+    if layout.kind == "bootstrap":
+        if s2.size < 2:
+            return np.nan, np.nan, _ONCE
+        excess = float(np.mean(s2 if spread_of_mean is None else spread_of_mean[two]))
+        return float(np.mean(s2)), excess, ""
+    if not layout.exchangeable:
+        return np.nan, 0.0, layout.reason
+    left_out = layout.n_obs - 1 - layout.train_size  # rows besides i outside i's training set
+    if left_out < 0.5:  # leave-one-out: every training set of i is all the other rows
+        if spread_of_mean is None:
+            return np.nan, 0.0, _LOO
+        return float(np.mean(spread_of_mean)), 0.0, ""
+    if s2.size < 2:
+        return np.nan, 0.0, _ONCE
+    if spread_of_mean is None:
+        # delete-d jackknife (Shao & Tu 1995, §2.3): the spread over random subsets of size r of
+        # the N = n - 1 other rows, times N / d, estimates the variance at training size r; exact
+        # for a mean, conservative in general (Efron & Stein 1981)
+        return float(np.mean(s2) * (layout.n_obs - 1) / left_out), 0.0, ""
+    # law of total variance: Var(fit of size r) = Var(fbar_i) + E[spread of the fits around fbar_i]
+    return float(np.mean(s2 + spread_of_mean[two])), 0.0, ""
+
+
+_ONCE = (
+    "variance and bias_sq need every point predicted by at least two models; this plan predicts "
+    "each point once (use CrossValidation(..., n_repeats=2) or more, or Bootstrap)"
+)
+_LOO = (
+    "leave-one-out trains every model of a point on all the other rows, so its predictions never "
+    "vary and the variance cannot be measured (use K < n folds, Bootstrap, or a least-squares "
+    "ladder, whose variance has a closed form)"
+)
+
+
+def relation(layout: SplitLayout) -> str:
+    """One sentence: how ``test_mse`` relates to the parts, and at which training size.
+
+    Examples
+    --------
+    >>> from complexity.plans import SplitLayout
+    >>> relation(SplitLayout("cross-validation", 50, 45.0, 5.0, True, True))[:40]
+    'test_mse = noise + bias_sq + variance, a'
+    """
+    if layout.kind == "bootstrap":
+        return (
+            f"test_mse = noise + bias_sq + variance + oob_excess; the parts are for a model fitted "
+            f"on all {layout.n_obs} rows, while the out-of-bag error is that of models fitted on "
+            "bootstrap samples, whose extra variance is oob_excess (the known upward bias of the "
+            "out-of-bag error, which the .632+ estimate corrects)."
+        )
+    if layout.kind == "simulation":
+        return (
+            f"test_mse = noise + bias_sq + variance, for training sets of {layout.train_size:g} "
+            "rows drawn from the known model."
+        )
+    return (
+        f"test_mse = noise + bias_sq + variance, all for models fitted on the plan's "
+        f"{layout.train_size:.4g} training rows."
+    )
 
 
 def no_information_error(y: NDArray[np.float64], fitted: NDArray[np.float64]) -> float:
@@ -152,10 +270,11 @@ def curves_table(
     capacity_name: str,
     *,
     noise: float,
-    plan_kind: str,
+    layout: SplitLayout,
     train_mse: NDArray[np.float64] | None = None,
     y: NDArray[np.float64] | None = None,
     fitted: NDArray[np.float64] | None = None,
+    leverage: NDArray[np.float64] | None = None,
 ) -> tuple[pd.DataFrame, list[str]]:
     """Build the curves DataFrame (one row per capacity) and a list of notes.
 
@@ -168,31 +287,48 @@ def curves_table(
         Name of the index (e.g. "degree").
     noise : float
         The noise variance (estimated, given, or known in a simulation).
-    plan_kind : str
-        "bootstrap", "cross-validation", "splitter" or "simulation".
+    layout : SplitLayout
+        The plan's training sets (:func:`complexity.plans.split_layout`).
     train_mse : ndarray, optional
         Training error of the full-data fit per capacity (data plans).
     y, fitted : ndarray, optional
         Observed y and full-data fitted values per capacity (for the .632 estimators).
+    leverage : ndarray of shape (n_capacities, n), optional
+        Hat-matrix diagonals of the full-data least-squares fits (exact engine), for the
+        closed-form variance of a point's average out-of-sample prediction.
 
     Returns
     -------
     curves : pandas.DataFrame
+        ``test_mse = noise + bias_sq + variance + oob_excess`` holds exactly in every row where
+        the parts are defined (see :func:`relation`).
     notes : list of str
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from complexity.accumulate import PointAccumulator
+    >>> from complexity.engine import Outcome
+    >>> from complexity.plans import SplitLayout
+    >>> acc = PointAccumulator(3, 1, 2, 2)
+    >>> acc.add(Outcome(0, 0, np.array([0, 1]), np.array([[1.0], [2.0]]), np.zeros(1)))
+    >>> acc.add(Outcome(1, 1, np.array([0, 1, 2]), np.array([[3.0], [2.0], [1.0]]), np.zeros(1)))
+    >>> layout = SplitLayout("bootstrap", 3, 3.0, 1.0, True, False)
+    >>> row = curves_table(acc, (0,), "degree", noise=0.5, layout=layout)[0].iloc[0]
+    >>> bool(np.isclose(row.test_mse, row.noise + row.bias_sq + row.variance + row.oob_excess))
+    True
     """
-    simulated = plan_kind == "simulation"
+    simulated = layout.kind == "simulation"
     notes: list[str] = []
+    reasons: dict[str, list[str]] = {}
     rows = []
-    uniform = acc.count.strides[1] == 0  # one count per point (no fit failed)
-    if uniform:
-        decomposable_all = int((acc.count[:, 0] >= 2).sum()) >= 2
-        every = _all_capacities(acc, 2 if decomposable_all else 1)
+    count = acc.count
     for c in range(len(capacities)):
-        if uniform:
-            decomposable, pp = decomposable_all, every[c]
-        else:
-            decomposable = int((acc.count[:, c] >= 2).sum()) >= 2
-            pp = _per_point(acc, c, 2 if decomposable else 1)
+        scored = count[:, c] >= 1
+        pp = _point_values(count[scored, c], acc.mean[scored, c], acc.m2[scored, c])
+        q = None
+        if leverage is not None and not simulated:
+            q = _out_of_sample_leverage(np.asarray(leverage[c], dtype=np.float64)[scored])
         n_pts = pp["e"].size
         row: dict[str, Any] = {}
         if train_mse is not None:
@@ -202,30 +338,21 @@ def curves_table(
                 float(acc.train_sum[c] / acc.train_n[c]) if acc.train_n[c] else np.nan
             )
         err = float(np.mean(pp["e"])) if n_pts else np.nan
-        if decomposable:
-            var = float(np.mean(pp["s2"]))
-            nb2 = float(np.mean(pp["mean"] ** 2 - pp["s2"] / pp["B"]))
-        else:
-            var = nb2 = np.nan
-        if simulated:
-            row["test_mse"] = noise + err
-            row["test_mse_se"] = _split_se(acc.resample_loss[:, c], acc.resample_n[:, c])
-            row["bias_sq"] = nb2
-            row["bias_sq_plus_noise"] = nb2 + noise
-        else:
-            row["test_mse"] = err
-            if plan_kind == "bootstrap":
-                row["test_mse_se"] = (
-                    float(np.std(pp["e"], ddof=1) / np.sqrt(n_pts)) if n_pts > 1 else np.nan
-                )
-            else:
-                row["test_mse_se"] = _split_se(acc.resample_loss[:, c], acc.resample_n[:, c])
-            row["bias_sq"] = nb2 - noise
-            row["bias_sq_plus_noise"] = nb2
+        var, excess, why = _parts(pp, q, noise, layout) if n_pts else (np.nan, np.nan, _ONCE)
+        if why:
+            reasons.setdefault(why, []).append(str(capacities[c]))
+        if not np.isfinite(var):
+            var = np.nan
+        nb2 = err - var - excess  # noise + squared bias
+        row["test_mse"] = noise + err if simulated else err
+        row["test_mse_se"] = _test_error_se(acc, c, pp["e"], layout) if n_pts else np.nan
+        row["bias_sq"] = nb2 if simulated else nb2 - noise
+        row["bias_sq_plus_noise"] = nb2 + noise if simulated else nb2
         row["variance"] = var
+        row["oob_excess"] = excess
         row["noise"] = noise
         if (
-            plan_kind == "bootstrap"
+            layout.kind == "bootstrap"
             and train_mse is not None
             and y is not None
             and fitted is not None
@@ -240,11 +367,9 @@ def curves_table(
         row["failed_fits"] = int(acc.failures.count[c])
         rows.append(row)
     curves = pd.DataFrame(rows, index=capacity_index(capacities, capacity_name))
-    if curves["variance"].isna().all():
-        notes.append(
-            "variance and bias_sq need every point predicted by at least two models; this plan "
-            "predicts each point once (use CrossValidation(..., n_repeats=2) or more, or Bootstrap)."
-        )
+    for why, where in reasons.items():
+        at = "" if len(where) == len(capacities) else f" ({capacity_name} {', '.join(where)})"
+        notes.append(f"variance and bias_sq are left empty{at}: {why}.")
     if not simulated and (curves["bias_sq"] < 0).any():
         neg = [str(k) for k in curves.index[curves["bias_sq"] < 0]]
         notes.append(
@@ -255,16 +380,25 @@ def curves_table(
     return curves, notes
 
 
-def replicate_curves(
-    acc: PointAccumulator, noise: float, simulated: bool
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Test-error curve and its point-level SE for each replicate, shape (n_replicates, C)."""
+def replicate_errors(acc: PointAccumulator, noise: float, simulated: bool) -> NDArray[np.float64]:
+    """Each replicate's own test-error curve, shape (n_replicates, C).
+
+    A replicate is one bootstrap sample (scored out of bag), one K-fold pass, or one simulated
+    training set. The selection-stability tally applies the headline rule to each of these curves
+    with the headline standard errors, so every replicate picks at the same scale.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from complexity.accumulate import PointAccumulator
+    >>> from complexity.engine import Outcome
+    >>> acc = PointAccumulator(2, 1, 2, 2)
+    >>> acc.add(Outcome(0, 0, np.array([0, 1]), np.array([[1.0], [3.0]]), np.zeros(1)))
+    >>> acc.add(Outcome(1, 1, np.array([0]), np.array([[2.0]]), np.zeros(1)))
+    >>> replicate_errors(acc, 0.0, False)[:, 0].tolist()
+    [5.0, 4.0]
+    """
     n = acc.replicate_n.astype(np.float64)
     with np.errstate(invalid="ignore", divide="ignore"):
         mse = acc.replicate_loss / n
-        second = acc.replicate_loss2 / n
-        sd = np.sqrt(np.maximum(second - mse**2, 0.0) * n / (n - 1))
-        se = sd / np.sqrt(n)
-    if simulated:
-        mse = mse + noise
-    return mse, se
+    return mse + noise if simulated else mse

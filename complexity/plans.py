@@ -11,6 +11,7 @@ from __future__ import annotations
 import functools
 import numbers
 from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -26,7 +27,16 @@ from ._validation import (
     repr_from_description,
 )
 
-__all__ = ["Bootstrap", "CrossValidation", "Plan", "Resample", "Simulation", "as_plan"]
+__all__ = [
+    "Bootstrap",
+    "CrossValidation",
+    "Plan",
+    "Resample",
+    "Simulation",
+    "SplitLayout",
+    "as_plan",
+    "split_layout",
+]
 
 #: spawn-key prefixes that keep the independent random streams of a sweep apart
 STREAM_RESAMPLE, STREAM_ESTIMATOR, STREAM_FULL_FIT, STREAM_PILOT = 0, 1, 2, 3
@@ -482,6 +492,135 @@ def _as_points(name: str, value: Any) -> NDArray[np.float64]:
     if not np.all(np.isfinite(arr)):
         raise ValueError(f"{name} contains NaN or infinite values.")
     return arr
+
+
+@dataclass(frozen=True)
+class SplitLayout:
+    """What the decomposition needs to know about a plan's training sets.
+
+    Attributes
+    ----------
+    kind : str
+        The plan's kind: "bootstrap", "cross-validation", "splitter" or "simulation".
+    n_obs : int
+        Number of observed rows (evaluation points for a simulation).
+    train_size : float
+        Mean number of training rows per resample (``n_obs`` for the bootstrap, which draws
+        ``n_obs`` rows with replacement; ``n_train`` for a simulation).
+    test_size : float
+        Mean number of scored rows per resample.
+    exchangeable : bool
+        The training set of a held-out row is a uniformly random subset of the other rows (shuffled
+        K-fold, repeated K-fold, random splits). Only then does the spread of a row's predictions
+        across resamples scale to a sampling variance (delete-d jackknife).
+    partition : bool
+        Every replicate scores each row once (K-fold passes), so a per-pass fold standard error is
+        defined.
+    replicate_of : ndarray of int or None
+        The replicate of every resample (None for the bootstrap and simulations: each resample is
+        its own replicate).
+    reason : str
+        Why ``exchangeable`` is False (empty otherwise).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> plan = cx.CrossValidation(5, n_repeats=2)
+    >>> layout = split_layout(plan, plan.resamples(20, np.random.SeedSequence(0)), 20)
+    >>> layout.train_size, layout.exchangeable, layout.partition, layout.replicate_of.tolist()
+    (16.0, True, True, [0, 0, 0, 0, 0, 1, 1, 1, 1, 1])
+    """
+
+    kind: str
+    n_obs: int
+    train_size: float
+    test_size: float
+    exchangeable: bool
+    partition: bool
+    replicate_of: NDArray[np.intp] | None = None
+    reason: str = ""
+
+
+#: scikit-learn splitters whose training sets are uniformly random subsets of the other rows
+_EXCHANGEABLE_SPLITTERS = ("KFold", "RepeatedKFold", "ShuffleSplit")
+
+
+def _splitter_exchangeable(splitter: Any) -> tuple[bool, str]:
+    name = type(splitter).__name__
+    from sklearn import model_selection as ms
+
+    known = tuple(getattr(ms, k) for k in _EXCHANGEABLE_SPLITTERS)
+    if type(splitter) not in known:
+        return False, (
+            f"{name}'s training sets are not known to be random subsets of the other rows (groups, "
+            "time order or strata shape them), so the spread of its predictions is not a sampling "
+            "variance"
+        )
+    if isinstance(splitter, ms.KFold) and not splitter.shuffle:
+        return False, (
+            "KFold(shuffle=False) cuts contiguous folds, which are not random subsets of the rows"
+        )
+    return True, ""
+
+
+def split_layout(plan: Plan, resamples: Sequence[Resample], n_obs: int) -> SplitLayout:
+    """Describe a plan's training sets for the decomposition (see :class:`SplitLayout`).
+
+    Parameters
+    ----------
+    plan : Plan
+    resamples : sequence of Resample
+        The plan's resamples (only read for K-fold and splitters; the bootstrap's lazy list is
+        never drawn here).
+    n_obs : int
+        Number of observed rows.
+
+    Returns
+    -------
+    SplitLayout
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import complexity as cx
+    >>> plan = cx.Bootstrap(10)
+    >>> split_layout(plan, plan.resamples(30, np.random.SeedSequence(0)), 30).train_size
+    30.0
+    """
+    if isinstance(plan, Simulation):
+        return SplitLayout(plan.kind, n_obs, float(plan.n_train), float(n_obs), False, False)
+    if isinstance(plan, Bootstrap):
+        return SplitLayout(plan.kind, n_obs, float(n_obs), n_obs * 0.368, True, False)
+    train = np.array([len(r.train) for r in resamples], dtype=np.float64)
+    test = np.array([len(r.test) for r in resamples], dtype=np.float64)
+    replicate_of = np.array([r.replicate for r in resamples], dtype=np.intp)
+    scored = np.zeros((int(replicate_of.max()) + 1, n_obs), dtype=np.int64)
+    for r in resamples:
+        scored[r.replicate, r.test] += 1
+    partition = bool((scored == 1).all())
+    if isinstance(plan, CrossValidation):
+        exchangeable = plan.shuffle
+        reason = (
+            ""
+            if exchangeable
+            else (
+                "CrossValidation(shuffle=False) cuts contiguous folds, which are not random subsets "
+                "of the rows"
+            )
+        )
+    else:
+        exchangeable, reason = _splitter_exchangeable(getattr(plan, "splitter", plan))
+    return SplitLayout(
+        plan.kind,
+        n_obs,
+        float(train.mean()),
+        float(test.mean()),
+        exchangeable,
+        partition,
+        replicate_of,
+        reason,
+    )
 
 
 def as_plan(plan: Any) -> Plan:

@@ -15,6 +15,7 @@ from importlib import metadata as _md
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from ._progress import FitCounter
 from ._validation import (
@@ -26,12 +27,12 @@ from ._validation import (
 )
 from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
-from .decompose import curves_table, replicate_curves
+from .decompose import curves_table, relation, replicate_errors
 from .engine import FullFit, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
 from .noise import NoiseEstimate, estimate_noise
-from .plans import Plan, Simulation, as_plan
+from .plans import Plan, Simulation, as_plan, split_layout
 from .result import SweepResult, _failures_frame
 from .rules import CRITERIA, RULES, choose, rule_table, stability
 
@@ -112,6 +113,68 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
             detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
         )
     return estimate_noise(X, y, noise)
+
+
+_SE_TEXT = {
+    "bootstrap": "point level: s(e_i) / sqrt(n) over the per-point out-of-bag errors",
+    "simulation": "Monte-Carlo: s(error of each simulated training set) / sqrt(number of sets)",
+    "pass": (
+        "fold level within each K-fold pass, s(CV_k) / sqrt(K), root-mean-square over passes "
+        "(repeats do not shrink it)"
+    ),
+    "corrected": "Nadeau & Bengio (2003) corrected: sqrt((1/J + n_test/n_train) s^2(split scores))",
+}
+
+
+def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.ndarray | None:
+    """Hat-matrix diagonals of the full-data least-squares fits, whichever engine ran.
+
+    The decomposition uses them for the closed-form variance of a point's average prediction, so
+    the generic engine on a least-squares ladder gets the same numbers as the exact one.
+    """
+    if full is None:
+        return None
+    if engine_used == "exact":
+        return full.leverage
+    linear = _linear_engine()
+    if linear is None or not problem.ladder.linear_least_squares or not linear.supports(problem):
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the engine's own warnings were given by its run
+        return linear.fit_full(problem).leverage
+
+
+def _stability(
+    acc: PointAccumulator,
+    curves: pd.DataFrame,
+    rule: str,
+    noise: float,
+    plan: Plan,
+    n_replicates: int,
+) -> tuple[pd.Series, str]:
+    """Selection stability under the headline rule, or NaN shares with the reason.
+
+    Every replicate (bootstrap sample, K-fold pass, simulated training set) applies the headline
+    rule to its own test-error curve with the headline standard errors, so its pick is made at
+    the same scale as the recommendation (METHODS.md §8).
+    """
+    caps = tuple(curves.index)
+    if rule in CRITERIA:
+        note = (
+            f"selection stability is not available for rule={rule!r}: closed-form criteria are "
+            "computed once on all the data, with no replicate to repeat them on."
+        )
+    elif n_replicates < 2:
+        note = (
+            "selection stability needs several replicates; this plan has one (use n_repeats >= 2 "
+            "or Bootstrap)."
+        )
+    else:
+        errors = replicate_errors(acc, noise, isinstance(plan, Simulation))
+        se = np.broadcast_to(curves["test_mse_se"].to_numpy(dtype=np.float64), errors.shape)
+        return stability(errors, se, caps, rule), ""
+    empty = stability(np.full((1, len(caps)), np.nan), np.zeros((1, len(caps))), caps, "min")
+    return empty, note
 
 
 def _all_failed_error(
@@ -306,17 +369,21 @@ def sweep(
     if acc.count.sum() == 0:
         raise _all_failed_error(acc, full, ladder.capacities)
 
+    layout = split_layout(plan, resamples, X_eval.shape[0])
     curves, more_notes = curves_table(
         acc,
         ladder.capacities,
         ladder.capacity_name,
         noise=noise_est.value,
-        plan_kind=plan.kind,
+        layout=layout,
         train_mse=None if full is None else full.train_mse,
         y=yd,
         fitted=None if full is None else full.fitted,
+        leverage=_leverage(full, engine_used, problem),
     )
     notes += more_notes
+    if full is not None:
+        notes += full.notes
     if full is not None and full.criteria is not None:
         for col in full.criteria.columns:
             curves[col] = full.criteria[col].to_numpy()
@@ -346,14 +413,9 @@ def sweep(
         )
     table = rule_table(curves)
     recommended = ladder.capacities[choose(rule, curves)]
-    rep_err, rep_se = replicate_curves(acc, noise_est.value, isinstance(plan, Simulation))
-    stab_rule = rule if rule in ("min", "one-se") else "min"
-    stab = stability(rep_err, rep_se, ladder.capacities, stab_rule)
-    if n_replicates == 1:
-        notes.append(
-            "selection stability needs several replicates; this plan has one (use n_repeats >= 2 "
-            "or Bootstrap)."
-        )
+    stab, stab_note = _stability(acc, curves, rule, noise_est.value, plan, n_replicates)
+    if stab_note:
+        notes.append(stab_note)
     for note in notes:
         warnings.warn(note, CapacityWarning, stacklevel=2)
 
@@ -377,7 +439,17 @@ def sweep(
         if isinstance(random_state, (int, type(None)))
         else repr(random_state),
         "engine": engine_used,
-        "stability_rule": stab_rule,
+        "stability_rule": rule,
+        "stability_note": stab_note,
+        "decomposition": {
+            "training_size": layout.train_size,
+            "relation": relation(layout),
+            "test_mse_se": _SE_TEXT[
+                layout.kind
+                if layout.kind in ("bootstrap", "simulation")
+                else ("pass" if layout.partition else "corrected")
+            ],
+        },
         "versions": _versions(),
         "run_seconds": round(time.perf_counter() - started, 4),
         "x_range": [[float(a), float(b)] for a, b in zip(design.min(axis=0), design.max(axis=0))],

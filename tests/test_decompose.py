@@ -6,6 +6,7 @@ import pytest
 from complexity.accumulate import PointAccumulator
 from complexity.decompose import bootstrap_632, curves_table, no_information_error
 from complexity.engine import Outcome
+from complexity.plans import SplitLayout
 
 
 def test_632_worked_check():
@@ -66,6 +67,10 @@ def test_oob_mean_model_limits():
     assert v == pytest.approx([0.25, 0.5, 0.4375, 0.25, 0.4375], abs=0.02)
 
 
+_BOOT30 = SplitLayout("bootstrap", 30, 30.0, 11.0, True, False)
+_CV4 = SplitLayout("cross-validation", 4, 2.0, 2.0, True, True, np.array([0, 0]))
+
+
 def test_error_identity_holds_exactly():
     # METHODS.md §2: ERR = NB2 + VAR exactly, so ERR = noise + BIAS2 + VAR for any noise estimate.
     rng = np.random.default_rng(3)
@@ -75,9 +80,10 @@ def test_error_identity_holds_exactly():
     for out in _mean_model_outcomes(y, B, 1):
         acc.add(out)
     for noise in (0.0, 0.7):
-        curves, _ = curves_table(acc, (0,), "degree", noise=noise, plan_kind="bootstrap")
+        curves, _ = curves_table(acc, (0,), "degree", noise=noise, layout=_BOOT30)
         row = curves.iloc[0]
-        assert row.test_mse == pytest.approx(row.noise + row.bias_sq + row.variance, rel=1e-12)
+        parts = row.noise + row.bias_sq + row.variance + row.oob_excess
+        assert row.test_mse == pytest.approx(parts, rel=1e-12)
         assert row.bias_sq_plus_noise == pytest.approx(row.bias_sq + noise, rel=1e-12)
 
 
@@ -86,7 +92,7 @@ def test_single_prediction_per_point_gives_no_variance_and_a_note():
     acc = PointAccumulator(4, 1, 2, 1)
     acc.add(Outcome(0, 0, np.array([0, 1]), np.array([[0.1], [0.2]]), np.array([0.0])))
     acc.add(Outcome(1, 0, np.array([2, 3]), np.array([[0.3], [-0.1]]), np.array([0.0])))
-    curves, notes = curves_table(acc, (1,), "degree", noise=0.0, plan_kind="cross-validation")
+    curves, notes = curves_table(acc, (1,), "degree", noise=0.0, layout=_CV4)
     assert np.isnan(curves["variance"].iloc[0])
     assert curves["test_mse"].iloc[0] == pytest.approx(np.mean([0.01, 0.04, 0.09, 0.01]))
     assert any("at least two models" in n for n in notes)

@@ -129,6 +129,12 @@ class FullFit:
     coefficients : dict or None
         Capacity value -> DataFrame of coefficients in the user's units (``estimate``,
         ``std_error``), indexed by term (least-squares ladders only).
+    notes : list of str
+        Findings of the full-data fit worth telling the user, one line each (for example that
+        the data fit exactly to rounding level from some capacity on).
+    leverage : ndarray of shape (n_capacities, n) or None
+        Hat-matrix diagonals of the full-data fits (least-squares ladders only; NaN rows where
+        the fit failed).
     """
 
     fitted: NDArray[np.float64]
@@ -137,3 +143,5 @@ class FullFit:
     criteria: Any = None
     diagnostics: Any = None
     coefficients: Mapping[Any, Any] | None = None
+    notes: list[str] = field(default_factory=list)
+    leverage: NDArray[np.float64] | None = None

@@ -1528,9 +1528,12 @@ def fit_full(problem: Problem) -> FullFit:
         ``fitted`` (n, C), ``train_mse`` (C,), ``failures`` (capacities whose full-data design is
         numerically rank deficient: a failure, never a minimum-norm fit), ``criteria``
         (:func:`complexity.criteria.criteria_table` columns ``loocv, gcv, aic, aicc, bic, cp,
-        fixed_design_variance``), ``diagnostics`` (``condition_number`` of each design,
-        ``max_abs_coefficient`` on the stable basis, ``n_params``) and ``coefficients`` (per
-        capacity, in the user's units: power basis for polynomials).
+        fixed_design_variance``, with the exact-fit guard on: an RSS at rounding level counts
+        as zero, METHODS.md §6 and :func:`complexity.criteria.rounding_level_rss`),
+        ``diagnostics`` (``condition_number`` of each design, ``max_abs_coefficient`` on the
+        stable basis, ``n_params``, ``exact_fit``), ``coefficients`` (per capacity, in the
+        user's units: power basis for polynomials) and ``notes`` (one line when some capacity
+        fits the data exactly).
 
     Examples
     --------
@@ -1579,12 +1582,16 @@ def _fit_full(problem: Problem) -> FullFit:
     criteria = pd.DataFrame(
         np.nan, index=pd.Index(caps, name=problem.ladder.capacity_name), columns=columns
     )
+    exact = np.zeros(C, dtype=bool)
+    notes: list[str] = []
     if ok.any():
         args = (fit.residuals[ok], fit.leverage[ok], fit.rank[ok])
+        # y and the condition numbers turn on the exact-fit guard (criteria.rounding_level_rss)
+        guard = {"rss": fit.rss[ok], "y": y, "condition": fit.condition[ok]}
         try:
-            table = criteria_table(*args, rss=fit.rss[ok])
+            table = criteria_table(*args, **guard)
         except ValueError as exc:  # no model leaves a usable noise estimate for Cp
-            table = criteria_table(*args, rss=fit.rss[ok], sigma2=1.0)
+            table = criteria_table(*args, **guard, sigma2=1.0)
             table[["cp", "fixed_design_variance"]] = np.nan
             from ..sweep import CapacityWarning
 
@@ -1594,12 +1601,16 @@ def _fit_full(problem: Problem) -> FullFit:
                 stacklevel=3,
             )
         criteria.loc[np.asarray(caps, dtype=object)[ok], columns] = table[columns].to_numpy()
+        exact[ok] = table["exact_fit"].to_numpy()
+        if exact.any():
+            notes.append(_exact_fit_note(problem, exact, ok, table, y))
 
     diagnostics = pd.DataFrame(
         {
             "condition_number": fit.condition,
             "max_abs_coefficient": np.where(ok, np.max(np.abs(fit.coef), axis=1), np.nan),
             "n_params": fit.rank,
+            "exact_fit": exact,
         },
         index=pd.Index(caps, name=problem.ladder.capacity_name),
     )
@@ -1625,4 +1636,36 @@ def _fit_full(problem: Problem) -> FullFit:
         criteria=criteria,
         diagnostics=diagnostics,
         coefficients=_coefficient_tables(problem, design, fit, set(failures)),
+        leverage=np.where(ok[:, None], fit.leverage, np.nan),
+        notes=notes,
+    )
+
+
+def _exact_fit_note(
+    problem: Problem,
+    exact: NDArray[np.bool_],
+    ok: NDArray[np.bool_],
+    table: Any,
+    y: NDArray[np.float64],
+) -> str:
+    """One line for the notes: which capacities fit the data to rounding level (RSS counted 0)."""
+    caps = list(problem.ladder.capacities)
+    name = problem.ladder.capacity_name
+    where = np.flatnonzero(exact)
+    first = caps[where[0]]
+    usable = np.flatnonzero(ok)
+    if np.array_equal(where, usable[usable >= where[0]]):
+        span = f"from {name} {first} on"
+    else:
+        span = f"at {name} {', '.join(str(caps[c]) for c in where)}"
+    level = np.asarray(table.attrs["rounding_level_rss"])[np.asarray(table["exact_fit"])]
+    scale = float(np.sum(y**2))
+    size = (
+        f"<= {float(np.max(level)) / scale:.1g} of the data's sum of squares"
+        if scale > 0
+        else "y is all zeros"
+    )
+    return (
+        f"RSS is at rounding level {span} ({size}): the data fit exactly; the closed-form "
+        f"criteria count that RSS as zero and pick the simplest such {name}, {first}."
     )
