@@ -158,12 +158,16 @@ def _parts(
         return float(np.mean(spread_of_mean)), 0.0, ""
     if s2.size < 2:
         return np.nan, 0.0, _ONCE
+    # delete-d jackknife (Shao & Tu 1995, §2.3): the spread over random subsets of size r of the
+    # N = n - 1 other rows, times N / d, estimates the variance at training size r; exact for a
+    # mean, conservative in general (Efron & Stein 1981). Law of total variance: Var(fit of size
+    # r) = Var(fbar_i) + E[spread of the fits around fbar_i], so Var(fbar_i) ~ (N/d - 1) * spread.
+    jackknife = float(np.mean(s2)) * (layout.n_obs - 1) / left_out
     if spread_of_mean is None:
-        # delete-d jackknife (Shao & Tu 1995, §2.3): the spread over random subsets of size r of
-        # the N = n - 1 other rows, times N / d, estimates the variance at training size r; exact
-        # for a mean, conservative in general (Efron & Stein 1981)
-        return float(np.mean(s2) * (layout.n_obs - 1) / left_out), 0.0, ""
-    # law of total variance: Var(fit of size r) = Var(fbar_i) + E[spread of the fits around fbar_i]
+        return jackknife, 0.0, ""
+    # least squares: Var(fbar_i) from the closed form sigma² h/(1-h), which is far steadier than
+    # the jackknife at high degree (whose few wild fits there make it heavy-tailed). It leaves out
+    # the part due to which x values were drawn, small beside the squared bias of a too simple fit
     return float(np.mean(s2 + spread_of_mean[two])), 0.0, ""
 
 

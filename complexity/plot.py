@@ -351,6 +351,9 @@ def _draw_parts(
             ("squared bias", np.clip(bias, 0.0, None), COLOURS["bias"]),
         ]
     parts.append(("variance", variance, COLOURS["variance"]))
+    if "oob_excess" in result.curves and np.nansum(_column(result, "oob_excess")) > 0:
+        # the out-of-bag models' extra variance: the stack then reaches the test-error marker
+        parts.append(("out-of-bag excess", _column(result, "oob_excess"), COLOURS["marker"]))
     width = _bar_width(x)
     bottom = np.zeros(len(x))
     for label, values, colour in parts:

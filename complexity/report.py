@@ -49,9 +49,10 @@ _COLUMN_WORDS: dict[str, str] = {
     "train_mse": "training error: mean squared error of the model fitted on all data",
     "test_mse": "test error: mean squared error on rows left out of training",
     "test_mse_se": "standard error of the test error",
-    "bias_sq": "squared bias (test error part due to a too simple model)",
+    "bias_sq": "squared bias (test error part due to a too simple model), at the training size stated below",
+    "oob_excess": "extra variance of models fitted on bootstrap samples over models fitted on all rows (bootstrap only)",
     "bias_sq_plus_noise": "squared bias plus noise (what resampling measures without a noise estimate)",
-    "variance": "variance (test error part due to sensitivity to the training set)",
+    "variance": "variance (test error part due to sensitivity to the training set), at the training size stated below",
     "noise": "noise variance (error no model can remove)",
     "test_mse_632": "the .632 bootstrap estimate of test error",
     "test_mse_632plus": "the .632+ bootstrap estimate of test error",
@@ -77,6 +78,7 @@ _MAIN_COLUMNS: tuple[str, ...] = (
     "test_mse_se",
     "bias_sq",
     "variance",
+    "oob_excess",
     "noise",
     "bias_sq_plus_noise",
     "test_mse_632",
@@ -387,8 +389,16 @@ def render_report(
     share_text = (
         f"Chosen in {chosen_share:.0%} of replicates."
         if np.isfinite(chosen_share)
-        else "Selection stability needs several replicates."
+        else html.escape(
+            result.metadata.get("stability_note") or "Selection stability is not available."
+        )
     )
+    split = result.metadata.get("decomposition") or {}
+    if split:
+        share_text += " " + html.escape(
+            f"{split.get('relation', '')} Standard error of the test error: "
+            f"{split.get('test_mse_se', '')}."
+        )
     main_columns = [c for c in _MAIN_COLUMNS if c in result.curves]
     curves = result.curves[main_columns].copy()
     curves["chosen (share)"] = result.stability.reindex(result.curves.index).to_numpy()

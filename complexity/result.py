@@ -164,7 +164,10 @@ class SweepResult:
             "",
             table.to_string(float_format=lambda v: f"{v:.4g}"),
             "",
-            "('chosen' = share of replicates in which the rule picks that row)",
+            "('chosen' = share of replicates in which the rule picks that row)"
+            if self.stability.notna().any()
+            else f"('chosen': {meta.get('stability_note') or 'not available'})",
+            (meta.get("decomposition") or {}).get("relation", ""),
             "",
             f"Recommended {name}: {self.recommended}  (rule '{self.rule}': "
             f"{self.rules.loc[self.rule, 'reason']})",

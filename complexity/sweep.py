@@ -6,6 +6,7 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import platform
 import sys
@@ -31,7 +32,7 @@ from .decompose import curves_table, relation, replicate_errors
 from .engine import FullFit, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
-from .noise import NoiseEstimate, estimate_noise
+from .noise import NoiseEstimate, check_against_curve, estimate_noise
 from .plans import Plan, Simulation, as_plan, split_layout
 from .result import SweepResult, _failures_frame
 from .rules import CRITERIA, RULES, choose, rule_table, stability
@@ -124,6 +125,35 @@ _SE_TEXT = {
     ),
     "corrected": "Nadeau & Bengio (2003) corrected: sqrt((1/J + n_test/n_train) s^2(split scores))",
 }
+
+
+def _residual_mean_square(
+    bound: NoiseEstimate,
+    curves: pd.DataFrame,
+    diagnostics: pd.DataFrame | None,
+    n_obs: int | None,
+    capacity_name: str,
+) -> tuple[NoiseEstimate, str]:
+    """The fallback noise: RSS / (n - p) at the lowest test error (least squares), else the bound.
+
+    METHODS.md §7.2: unbiased when that capacity contains the truth, too large when it is too
+    simple; either way no larger than needed to keep squared bias >= 0 at a correct capacity.
+    """
+    best = int(np.nanargmin(curves["test_mse"].to_numpy()))
+    label = f"{capacity_name} {curves.index[best]}"
+    if n_obs and diagnostics is not None and np.isfinite(curves["train_mse"].iloc[best]):
+        p = float(diagnostics["n_params"].iloc[best])
+        if n_obs - p >= 1:
+            value = float(curves["train_mse"].iloc[best]) * n_obs / (n_obs - p)
+            detail = (
+                f"residual mean square RSS/(n - p) of {label}, the lowest test error "
+                f"(df = {n_obs - p:g}); {bound.detail}"
+            )
+            new = dataclasses.replace(
+                bound, value=value, detail=detail, df=n_obs - p, se=value * np.sqrt(2 / (n_obs - p))
+            )
+            return new, f"the residual mean square of {label}, {value:.4g}"
+    return bound, f"the lowest test error, {bound.value:.4g} (at {label})"
 
 
 def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.ndarray | None:
@@ -370,17 +400,36 @@ def sweep(
         raise _all_failed_error(acc, full, ladder.capacities)
 
     layout = split_layout(plan, resamples, X_eval.shape[0])
-    curves, more_notes = curves_table(
-        acc,
-        ladder.capacities,
-        ladder.capacity_name,
-        noise=noise_est.value,
-        layout=layout,
-        train_mse=None if full is None else full.train_mse,
-        y=yd,
-        fitted=None if full is None else full.fitted,
-        leverage=_leverage(full, engine_used, problem),
-    )
+    leverage = _leverage(full, engine_used, problem)
+
+    def table(noise_value: float) -> tuple[pd.DataFrame, list[str]]:
+        return curves_table(
+            acc,
+            ladder.capacities,
+            ladder.capacity_name,
+            noise=noise_value,
+            layout=layout,
+            train_mse=None if full is None else full.train_mse,
+            y=yd,
+            fitted=None if full is None else full.fitted,
+            leverage=leverage,
+        )
+
+    curves, more_notes = table(noise_est.value)
+    if not isinstance(plan, Simulation):
+        guarded, noise_note = check_against_curve(
+            noise_est, curves["test_mse"].to_numpy(), curves["test_mse_se"].to_numpy()
+        )
+        if guarded is not noise_est and guarded.method == "curve-bound":
+            n_params = None if full is None or full.diagnostics is None else full.diagnostics
+            guarded, used = _residual_mean_square(
+                guarded, curves, n_params, n_obs, ladder.capacity_name
+            )
+            noise_note += f" Used instead: {used}."
+            curves, more_notes = table(guarded.value)
+        noise_est = guarded
+        if noise_note:
+            notes.append(noise_note)
     notes += more_notes
     if full is not None:
         notes += full.notes

@@ -31,6 +31,7 @@ from complexity.noise import (
     NoiseEstimate,
     difference_variance,
     estimate_noise,
+    neighbour_trend_variance,
     neighbour_variance,
     optimal_difference_variance,
     replicate_variance,
@@ -46,6 +47,7 @@ ESTIMATORS = {
     "hkt2": lambda X, y: optimal_difference_variance(X[:, 0], y, order=2),
     "hkt3": lambda X, y: optimal_difference_variance(X[:, 0], y, order=3),
     "neighbours": neighbour_variance,
+    "trend": neighbour_trend_variance,
 }
 
 TOY_X = np.array([1.0, 2.0, 3.0, 4.0, 5.0])
@@ -358,15 +360,25 @@ def test_neighbours_recover_sigma():
 # ------------------------------------------------------------------------------------------
 
 
-def test_auto_picks_replicates_when_df_at_least_2():
-    # METHODS.md 7.1 / DESIGN: replicates (pure error) first when x repeats.
+def test_auto_picks_replicates_when_genuine_and_precise():
+    # METHODS.md 7.1 pure error; our auto rule (estimate_noise Notes): >= 3 replicate groups,
+    # >= a third of the rows repeated, and df >= the alternative's effective df.
+    X = np.repeat(np.array([[0.0, 1.0], [2.0, 3.0], [5.0, 1.0], [4.0, 4.0]]), 3, axis=0)
+    y = np.array([1.0, 2.0, 3.0, 4.0, 7.0, 4.0, 3.0, 3.0, 6.0, 0.0, 1.0, 2.0])
+    est = estimate_noise(X, y)
+    assert est.method == "replicates"
+    assert est.value == pytest.approx((2 + 6 + 6 + 2) / 8, rel=1e-14)  # SS_pe per group, df = 8
+    assert est.df == 8.0
+    assert "df = 8" in est.detail and "precise as" in est.detail
+
+
+def test_auto_two_replicate_groups_are_not_enough():
+    # Our auto rule: fewer than 3 groups of repeated x -> the alternative, and detail says why.
     X = np.array([[0.0, 1.0], [0.0, 1.0], [2.0, 3.0], [2.0, 3.0], [5.0, 1.0]])
     y = np.array([1.0, 2.0, 4.0, 7.0, 3.0])
     est = estimate_noise(X, y)
-    assert est.method == "replicates"
-    assert est.value == pytest.approx((0.5 + 4.5) / 2, rel=1e-14)  # SS_pe = 0.5 + 4.5, df = 2
-    assert est.df == 2.0
-    assert "df = 2" in est.detail
+    assert est.method == "neighbours"
+    assert "only 2 groups of repeated x" in est.detail
 
 
 def test_auto_picks_differences_for_one_column():
@@ -385,8 +397,9 @@ def test_auto_picks_neighbours_for_several_columns():
     y = X.sum(axis=1) + rng.normal(size=60)
     est = estimate_noise(X, y)
     assert (est.method, est.df) == ("neighbours", None)
-    assert est.value == neighbour_variance(X, y)
-    assert "3 columns" in est.detail
+    # several predictors: the Gamma-test estimator (METHODS.md 7.6), not the 1-NN one
+    assert est.value == neighbour_trend_variance(X, y)
+    assert "3 columns" in est.detail and "Gamma-test" in est.detail
 
 
 def test_auto_falls_back_to_neighbours_with_two_distinct_x():

@@ -121,7 +121,8 @@ def test_parts_view_stacks_noise_bias_variance(result):
     noise = [p for p in ax.patches if p.get_gid() is None]
     assert not noise  # every bar belongs to a labelled part
     containers = {c.get_label(): c for c in ax.containers}
-    assert set(containers) == {"noise", "squared bias", "variance"}
+    # the bootstrap adds the out-of-bag models' extra variance, so the stack meets the marker
+    assert set(containers) == {"noise", "squared bias", "variance", "out-of-bag excess"}
     heights = {k: np.array([p.get_height() for p in c.patches]) for k, c in containers.items()}
     bottoms = {k: np.array([p.get_y() for p in c.patches]) for k, c in containers.items()}
     np.testing.assert_allclose(heights["noise"], curves["noise"])
@@ -130,6 +131,10 @@ def test_parts_view_stacks_noise_bias_variance(result):
     np.testing.assert_allclose(
         bottoms["variance"], curves["noise"] + curves["bias_sq"].clip(lower=0)
     )
+    np.testing.assert_allclose(heights["out-of-bag excess"], curves["oob_excess"])
+    top = bottoms["out-of-bag excess"] + heights["out-of-bag excess"]
+    ok = curves["bias_sq"] >= 0  # there the stack is exactly test_mse (decompose.relation)
+    np.testing.assert_allclose(top[ok], curves["test_mse"][ok], rtol=1e-9)
     assert list(_line(ax, "recommended").get_xdata()) == [result.recommended] * 2
     assert ax.get_title(loc="left") == "Where the test error comes from"
 
