@@ -347,8 +347,10 @@ def _sweep_csv(args: argparse.Namespace, command: str) -> int:
 
     if args.folds is not None:
         plan: Any = cx.CrossValidation(n_splits=args.folds, n_repeats=args.repeats or 1)
-    else:
+    elif args.bootstrap is not None:
         plan = cx.Bootstrap(args.bootstrap)
+    else:
+        plan = None  # the library's default plan (repeated 10-fold cross-validation)
 
     result = _run_sweep(
         ladder,
@@ -516,16 +518,16 @@ def _parser() -> argparse.ArgumentParser:
     kind.add_argument(
         "--bootstrap",
         type=_count,
-        default=200,
+        default=None,
         metavar="N",
-        help="bootstrap resamples, scored out of bag (default 200)",
+        help="bootstrap resamples, scored out of bag, instead of the default plan",
     )
     kind.add_argument(
         "--folds",
         type=_count,
         default=None,
         metavar="K",
-        help="K-fold cross-validation instead of the bootstrap",
+        help="K-fold cross-validation (default plan: 10 folds, 10 repeats)",
     )
     plan.add_argument(
         "--repeats",

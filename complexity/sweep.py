@@ -33,7 +33,7 @@ from .engine import FullFit, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
 from .noise import NoiseEstimate, check_against_curve, estimate_noise
-from .plans import Plan, Simulation, as_plan, split_layout
+from .plans import Plan, Simulation, as_plan, default_plan, split_layout
 from .result import SweepResult, _failures_frame
 from .rules import CRITERIA, RULES, choose, rule_table, stability
 
@@ -125,6 +125,24 @@ _SE_TEXT = {
     ),
     "corrected": "Nadeau & Bengio (2003) corrected: sqrt((1/J + n_test/n_train) s^2(split scores))",
 }
+
+
+def _edge_notes(table: pd.DataFrame, capacities: tuple[Any, ...], name: str) -> list[str]:
+    """One note per end of the ladder that a rule picks: the answer may lie beyond it."""
+    if len(capacities) < 2:
+        return []
+    out = []
+    for end, word, advice in (
+        (capacities[0], "lowest", "simpler"),
+        (capacities[-1], "highest", "more flexible"),
+    ):
+        rules = [r for r, cap in table["capacity"].items() if cap == end]
+        if rules:
+            out.append(
+                f"{', '.join(rules)} pick(s) the {word} {name} tried ({end}): the best {name} may "
+                f"lie beyond the ladder; extend it with {advice} values to check."
+            )
+    return out
 
 
 def _residual_mean_square(
@@ -248,8 +266,10 @@ def sweep(
         Predictors (a DataFrame keeps its column names). May be None with a :class:`Simulation`.
     y : array-like of shape (n_samples,), optional
         Response.
-    plan : Plan, scikit-learn splitter or int, default=Bootstrap(200)
-        Where training sets come from. An int K means ``CrossValidation(K)``.
+    plan : Plan, scikit-learn splitter or int, optional
+        Where training sets come from. An int K means ``CrossValidation(K)``. Default:
+        ``CrossValidation(10, n_repeats=10)`` (:func:`complexity.plans.default_plan`; fewer
+        folds for fewer than 10 rows).
     noise : "auto", "replicates", "differences", "neighbours" or float, default="auto"
         How to estimate the noise variance sigma² that separates squared bias from noise; a float
         is taken as sigma² itself (a variance, not an SD). Ignored by a Simulation (noise known).
@@ -302,9 +322,7 @@ def sweep(
             "ladder must be cx.PolynomialLadder(...), cx.FeatureLadder(...) or cx.ParamLadder(...); "
             f"got {_short_repr(ladder)}."
         )
-    from .plans import Bootstrap
-
-    plan = Bootstrap(200) if plan is None else as_plan(plan)
+    plan = as_plan(plan) if plan is not None else None
     check_option("rule", rule, RULES)
     check_n_jobs(n_jobs)
     for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
@@ -329,6 +347,8 @@ def sweep(
         data = check_X_y(X, y, groups=groups)
         Xd, yd, names = data.X, data.y, data.feature_names
         n_obs = Xd.shape[0]
+        if plan is None:
+            plan = default_plan(n_obs)
         w = check_sample_weight(sample_weight, n_obs)  # a validated copy, or None
         notes += ladder.check_data(Xd, names)
         models = ladder.build(Xd, names)
@@ -461,6 +481,7 @@ def sweep(
             "engine; use rule='min' or 'one-se' here."
         )
     table = rule_table(curves)
+    notes += _edge_notes(table, ladder.capacities, ladder.capacity_name)
     recommended = ladder.capacities[choose(rule, curves)]
     stab, stab_note = _stability(acc, curves, rule, noise_est.value, plan, n_replicates)
     if stab_note:
