@@ -1,32 +1,44 @@
 """From accumulated residuals to the curves: test error and its SE, squared bias, variance, noise.
 
-For every capacity, with per-point out-of-sample residuals d_ib = prediction - target over the B_i
-resamples that scored point i (METHODS.md §2, after Efron & Tibshirani 1997)::
+For every capacity and point i, with out-of-sample residuals d_ib = prediction - target over the
+B_i resamples that scored i (METHODS.md §2, after Efron & Tibshirani 1997)::
 
-    e_i   = mean_b d_ib^2                       per-point test error
-    s_i^2 = sample variance of d_ib (ddof 1)    per-point variance of the prediction
-    ERR   = mean_i e_i
-    VAR   = mean_i s_i^2
-    NB2   = mean_i [ mean_b(d_ib)^2 - s_i^2 / B_i ]      noise + squared bias
-    BIAS2 = NB2 - sigma2_hat
+    e_i   = mean_b d_ib^2                        per-point test error (every point with B_i >= 1)
+    s_i^2 = sample variance of d_ib (ddof 1)     raw spread of the predictions (B_i >= 2)
+    ERR   = mean_i e_i                           test_mse (Err^(1) for the bootstrap)
 
-so that ERR = NB2 + VAR exactly, and ERR = sigma2_hat + BIAS2 + VAR. With real data the targets
-are noisy observations, so NB2 mixes noise and squared bias: resampling one data set cannot tell a
-systematic error from noise, and only an outside noise estimate (replicates, differences,
-neighbours; :mod:`complexity.noise`) splits them. In a :class:`~complexity.Simulation` the target
-is the true function, so BIAS2 is measured directly and the noise variance is known.
+The parts are stated for one training size (:func:`relation` gives the sentence):
+
+- **variance** at that size. Bootstrap (size n): mean s_i^2. K-fold and random splits (size r):
+  a point's training sets are random r-subsets of the N = n - 1 other rows, so the spread is only
+  the part of the variance that comes from which rows are left out with it. The delete-d
+  jackknife scales it: V = s^2 N / d with d = N - r (Shao & Tu 1995, §2.3; exact for a mean and
+  conservative in general, Efron & Stein 1981). For least squares the law of total variance is
+  used instead: V = s^2 + Var(fbar_i), with Var(fbar_i) = sigma² h_i / (1 - h_i), the
+  Gauss-Markov variance of the fit on the other rows (METHODS.md §1). The jackknife is
+  heavy-tailed at high degree; this form is steady.
+- **oob_excess** (bootstrap only): Var(fbar_i), estimated as above for least squares and by
+  s_i^2 otherwise. It is the extra variance of models trained on bootstrap samples, which makes
+  the out-of-bag error too high (E[(y_i - fbar_i)^2] = sigma² + b_i^2 + Var(fbar_i)).
+- **bias_sq** = ERR - noise - variance - oob_excess, and ``bias_sq_plus_noise`` = bias_sq +
+  noise. So ``test_mse = noise + bias_sq + variance + oob_excess`` holds exactly wherever the
+  parts are defined. In a :class:`~complexity.Simulation` the target is the true function, so
+  bias_sq is measured directly and the noise variance is known.
+
+A part that a plan cannot estimate is NaN, and a note gives the reason. This happens for one
+K-fold pass (every point predicted once), for leave-one-out with a ladder that is not least
+squares, and for splitters whose training sets are not random subsets of the rows.
 
 Standard errors (``test_mse_se``), by plan:
 
 - bootstrap: point level, ``s(e_i) / sqrt(n')`` over the n' scored points;
-- K-fold and other splitters: split level, ``s(CV_j) / sqrt(J)`` over the J split scores (ddof 1);
+- K-fold: fold level within each pass, ``s(CV_k) / sqrt(K)``, root-mean-square over the passes.
+  Repeating passes does not shrink it, because the passes share one data set;
+- other random splits: Nadeau & Bengio (2003), ``sqrt((1/J + n_test/n_train) s^2)``;
 - simulation: Monte-Carlo standard error across the simulated training sets.
 
-Both data-based forms ignore the positive correlations between overlapping training sets, so they
-are somewhat too small (Bengio & Grandvalet 2004: no unbiased estimator of the variance of K-fold
-CV exists); read the one-standard-error rule with that in mind. Points enter the bootstrap figures
-only when at least two resamples left them out (so their variance is defined); with 50 or more
-resamples that is essentially every point.
+Bengio & Grandvalet (2004) show that no unbiased estimator of the variance of K-fold CV exists.
+These are estimates with known, moderate bias.
 """
 
 from __future__ import annotations

@@ -11,7 +11,7 @@ by any tool. Schema (``"format": "complexity.sweep-result"``, ``"version": 1``):
                    "data": {column: [...]}},
      "rules":     [{"rule", "capacity", "reason"}, ...],
      "stability": [share per capacity],
-     "noise":     {"value", "method", "df", "detail"},
+     "noise":     {"value", "method", "df", "detail", "se"},
      "failures":  [{"capacity", "count", "first_message"}, ...],
      "notes":     [str, ...],
      "metadata":  {...},
@@ -57,8 +57,9 @@ class SweepResult:
         One row per capacity (index named after the capacity, e.g. ``degree``), simplest first.
         Columns: ``train_mse`` (training error of the model fitted on all data; for a simulation,
         the mean over simulated training sets), ``test_mse`` (out-of-bag, held-out, or expected
-        error at new data), ``test_mse_se``, ``bias_sq``, ``variance``, ``noise``,
-        ``bias_sq_plus_noise``, bootstrap-only ``test_mse_632`` and ``test_mse_632plus``,
+        error at new data), ``test_mse_se``, ``bias_sq``, ``variance``, ``oob_excess``,
+        ``noise``, ``bias_sq_plus_noise``, bootstrap-only ``test_mse_632`` and
+        ``test_mse_632plus``,
         ``n_scored``, ``failed_fits``, and for least-squares ladders the closed-form criteria.
     recommended : object
         The capacity chosen by ``rule``.
