@@ -905,7 +905,22 @@ def _neighbours_alt(X: NDArray[np.float64], y: NDArray[np.float64]) -> _Alternat
             f"(effective df ≈ {df_eff:.3g})",
         )
     value, df_eff, k, clipped, se = _gamma(X, y, _GAMMA_NEIGHBOURS)
-    note = "; negative intercept set to 0, se from the first neighbours" if clipped else ""
+    if clipped:
+        # a negative intercept carries no information on sigma² (too few rows for the dimension,
+        # or a rough f): the classical first-neighbour estimate, biased upward, is the stated
+        # fallback; the sweep's curve check then bounds it from above
+        first, df1 = _neighbours_with_df(X, y)
+        return _Alternative(
+            "neighbours",
+            "first-neighbour differences",
+            first,
+            df1,
+            first * math.sqrt(2.0 / df1),
+            f"nearest-neighbour differences over {n} rows, {p} columns scaled to unit SD "
+            f"(effective df ≈ {df1:.3g}); the Gamma-test intercept was negative, so its "
+            "trend correction was not used",
+        )
+    note = ""
     return _Alternative(
         "neighbours",
         "Gamma-test neighbour differences",

@@ -494,3 +494,26 @@ def test_default_call_on_the_demo_and_a_known_quadratic():
     x = rng.uniform(-1, 1, 80)
     y2 = 1 + 2 * x - 1.5 * x**2 + rng.normal(0, 0.2, 80)
     assert _quiet_sweep(cx.PolynomialLadder(range(0, 8)), x, y2, random_state=0).recommended == 2
+
+
+@pytest.mark.parametrize(
+    ("name", "target"), [("longley", "TOTEMP"), ("statecrime", "murder"), ("ccard", "AVGEXP")]
+)
+def test_several_predictor_noise_does_not_exceed_the_curve(name, target):
+    # statsmodels' bundled data sets, where the first-neighbour estimate exceeded the lowest test
+    # error: now the noise stays within one SE of the lowest test error (test error >= noise)
+    sm = pytest.importorskip("statsmodels.api")
+    data = getattr(sm.datasets, name).load_pandas().data
+    y = data[target]
+    X = data.drop(columns=[target]).select_dtypes("number")
+    result = _quiet_sweep(cx.FeatureLadder(range(1, X.shape[1] + 1)), X, y, random_state=0)
+    best = int(np.argmin(result.curves["test_mse"].to_numpy()))
+    low, se = result.curves["test_mse"].iloc[best], result.curves["test_mse_se"].iloc[best]
+    own = result.noise.se or 0.0
+    assert result.noise.value <= low + np.hypot(se, own) + 1e-12
+    if name == "longley":
+        # the fallback is the residual mean square of the full model: statsmodels' OLS scale
+        ols = sm.OLS(y, sm.add_constant(X)).fit()
+        assert result.noise.method == "curve-bound"
+        assert result.recommended == X.shape[1]
+        assert result.noise.value == pytest.approx(ols.scale, rel=1e-6)
