@@ -62,6 +62,7 @@ COLOURS: dict[str, str] = {
     "bias": "#E69F00",  # orange
     "variance": "#56B4E9",  # sky blue
     "noise": "#009E73",  # bluish green
+    "excess": "#CC79A7",  # reddish purple
     "lower": "#0072B2",  # blue
     "higher": "#CC79A7",  # reddish purple
     "other": "#56B4E9",  # sky blue
@@ -353,7 +354,7 @@ def _draw_parts(
     parts.append(("variance", variance, COLOURS["variance"]))
     if "oob_excess" in result.curves and np.nansum(_column(result, "oob_excess")) > 0:
         # the out-of-bag models' extra variance: the stack then reaches the test-error marker
-        parts.append(("out-of-bag excess", _column(result, "oob_excess"), COLOURS["marker"]))
+        parts.append(("out-of-bag excess", _column(result, "oob_excess"), COLOURS["excess"]))
     width = _bar_width(x)
     bottom = np.zeros(len(x))
     for label, values, colour in parts:

@@ -47,6 +47,18 @@ CAUTION = (
 )
 
 
+#: columns of the summary table, when present (``oob_excess`` only where it is not zero)
+_SUMMARY_COLUMNS = (
+    "train_mse",
+    "test_mse",
+    "test_mse_se",
+    "bias_sq",
+    "variance",
+    "oob_excess",
+    "noise",
+)
+
+
 @dataclass
 class SweepResult:
     """The outcome of :func:`complexity.sweep`.
@@ -151,8 +163,8 @@ class SweepResult:
         name = self.capacity_name
         shown = [
             c
-            for c in ("train_mse", "test_mse", "test_mse_se", "bias_sq", "variance", "noise")
-            if c in self.curves
+            for c in _SUMMARY_COLUMNS
+            if c in self.curves and (c != "oob_excess" or self.curves[c].fillna(0).any())
         ]
         extra = [c for c in ("loocv", "aicc", "bic") if c in self.curves]
         table = self.curves[shown + extra].copy()
