@@ -373,6 +373,11 @@ def sweep(
     if w is not None and engine_used != "generic":  # pragma: no cover - guarded in supports()
         raise ValueError("sample_weight needs the generic engine.")
     noise_est = _noise_for(noise, plan, Xd, yd)
+    if "not pure error from" in noise_est.detail:  # a few repeated rows: accidental ties
+        notes.append(
+            "some x values repeat, but too few to measure the noise as pure error (accidental "
+            f"ties or duplicated records?): {noise_est.detail}."
+        )
 
     resamples = plan.resamples(
         X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups

@@ -517,3 +517,16 @@ def test_several_predictor_noise_does_not_exceed_the_curve(name, target):
         assert result.noise.method == "curve-bound"
         assert result.recommended == X.shape[1]
         assert result.noise.value == pytest.approx(ols.scale, rel=1e-6)
+
+
+def test_accidental_ties_are_not_taken_for_replicates():
+    # statsmodels' Engel data: 235 rows, 4 tied incomes and 2 duplicated rows; pure error from
+    # 4 df gave 590 against ~11,640 by differences (Gasser et al. 1986, METHODS.md §7.4)
+    sm = pytest.importorskip("statsmodels.api")
+    engel = sm.datasets.engel.load_pandas().data
+    with pytest.warns(cx.CapacityWarning, match="too few to measure the noise as pure error"):
+        result = cx.sweep(
+            cx.PolynomialLadder(range(0, 5)), engel[["income"]], engel["foodexp"], random_state=0
+        )
+    assert result.noise.method == "differences"
+    assert 9_000 < result.noise.value < 14_000
