@@ -116,7 +116,9 @@ _FIGURE_CAPTIONS: dict[str, str] = {
     "errors": "Training error and test error against capacity. The band is ±1 standard error of "
     "the test error; the dashed line marks the recommended capacity.",
     "parts": "The test error split into noise (which no model removes), squared bias (too simple "
-    "a model) and variance (too much sensitivity to the particular training set).",
+    "a model) and variance (too much sensitivity to the particular training set), for the "
+    "training size stated under the recommendation. For the bootstrap a fourth part, the "
+    "out-of-bag excess, is the extra variance of models fitted on bootstrap samples.",
     "fits": "The data with the curves fitted on all of it at the recommended capacity and its "
     "neighbours. The band holds the middle 90% of refits on bootstrap resamples. Shaded: outside "
     "the measured range, where no fitted curve should be used.",
