@@ -368,6 +368,7 @@ def sweep(
         design_X=design,
         groups=data.groups if not isinstance(plan, Simulation) else None,
         sample_weight=w,
+        feature_names=tuple(str(v) for v in names) if names else None,
     )
     eng, engine_used = _choose_engine(engine, problem)
     if w is not None and engine_used != "generic":  # pragma: no cover - guarded in supports()

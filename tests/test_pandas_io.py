@@ -237,3 +237,16 @@ def test_inputs_are_not_modified(frame):
     pd.testing.assert_frame_equal(X, X0)
     pd.testing.assert_series_equal(y, y0)
     pd.testing.assert_series_equal(w, w0)
+
+
+def test_coefficients_are_labelled_with_the_dataframe_columns():
+    # a user's column names label the terms: feature counts and polynomial powers alike
+
+    X, y = load_diabetes(return_X_y=True, as_frame=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        counts = cx.sweep(cx.FeatureLadder(range(1, 4)), X, y, plan=cx.Bootstrap(5))
+        df = pd.DataFrame({"temperature": np.linspace(-20.0, 60.0, 30)})
+        poly = cx.sweep(cx.PolynomialLadder(range(0, 3)), df, np.cos(df["temperature"] / 40))
+    assert list(counts.coefficients(3).index) == ["intercept", "age", "sex", "bmi"]
+    assert list(poly.coefficients(2).index) == ["1", "temperature", "temperature^2"]

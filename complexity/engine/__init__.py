@@ -50,6 +50,8 @@ class Problem:
     groups : array or None
     sample_weight : ndarray or None
         Per-row weights passed to the estimator's fit (data plans only).
+    feature_names : tuple of str or None
+        The predictors' names (DataFrame columns), used to label coefficients.
     """
 
     ladder: Ladder
@@ -63,6 +65,7 @@ class Problem:
     design_X: NDArray[np.float64]
     groups: Any = None
     sample_weight: NDArray[np.float64] | None = None
+    feature_names: tuple[str, ...] | None = None
 
     @property
     def n_capacities(self) -> int:
