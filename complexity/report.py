@@ -226,6 +226,24 @@ def _table(
     )
 
 
+def _inclusion_section(result: SweepResult) -> str:
+    """Which predictors the recommended count holds, and how often each was among the first k."""
+    inclusion = getattr(result, "inclusion", None)
+    if inclusion is None or result.recommended not in inclusion.index:
+        return ""
+    share = inclusion.loc[result.recommended].sort_values(ascending=False, kind="stable")
+    table = pd.DataFrame({"share of resamples among the first k": share.to_numpy()})
+    table.index = pd.Index([str(v) for v in share.index], name="predictor")
+    k = result.recommended
+    always = [str(v) for v, sh in share.items() if sh >= 1.0]
+    lead = f"The chosen model uses the first {k} predictor(s) of each training set's order." + (
+        f" Every resample included: {', '.join(always)}." if always else ""
+    )
+    return f"<h3>Predictors in the chosen model</h3><p>{_esc(lead)}</p>" + _table(
+        table, index_name="predictor"
+    )
+
+
 def _ranges_text(result: SweepResult, names: list[str]) -> str:
     ranges = result.metadata.get("x_range") or []
     parts = [f"{name} from {_num(lo)} to {_num(hi)}" for name, (lo, hi) in zip(names, ranges)]
@@ -391,14 +409,12 @@ def render_report(
     share_text = (
         f"Chosen in {chosen_share:.0%} of replicates."
         if np.isfinite(chosen_share)
-        else html.escape(
-            result.metadata.get("stability_note") or "Selection stability is not available."
-        )
+        else result.metadata.get("stability_note") or "Selection stability is not available."
     )
     split = result.metadata.get("decomposition") or {}
-    if split:
-        share_text += " " + html.escape(
-            f"{split.get('relation', '')} Standard error of the test error: "
+    if split:  # plain text: the template escapes it
+        share_text += (
+            f" {split.get('relation', '')} Standard error of the test error: "
             f"{split.get('test_mse_se', '')}."
         )
     main_columns = [c for c in _MAIN_COLUMNS if c in result.curves]
@@ -420,6 +436,7 @@ def render_report(
         failures = "<h3>Failed fits</h3>" + _table(
             result.failures, index_name=result.capacity_name, text_columns=("first_message",)
         )
+    chosen_predictors = _inclusion_section(result)
     notes = ""
     if result.notes:
         notes = (
@@ -467,6 +484,7 @@ def render_report(
 <div>Rule <code>{_esc(result.rule)}</code>: {_esc(reason)}. {_esc(share_text)}</div></div>
 <h2>Every rule and its reason</h2>
 {_table(rules, chosen=result.rule, index_name="rule", text_columns=("capacity", "reason"))}
+{chosen_predictors}
 </section>
 
 <section id="figures">

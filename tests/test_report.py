@@ -228,3 +228,17 @@ def test_report_bad_arguments(result):
         render_report("result")
     with pytest.raises(ValueError, match="views"):
         render_report(result, views=["pie"])
+
+
+def test_feature_count_report_names_the_chosen_predictors(tmp_path):
+    # scikit-learn's bundled diabetes data; the fixed column order, so the first k are known
+    from sklearn.datasets import load_diabetes
+
+    X, y = load_diabetes(return_X_y=True, as_frame=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = cx.sweep(cx.FeatureLadder(range(1, 5)), X, y, plan=cx.Bootstrap(10))
+    html_text = result.report(tmp_path / "r.html").read_text(encoding="utf-8")
+    assert "Predictors in the chosen model" in html_text
+    first = list(X.columns[: result.recommended])
+    assert f"Every resample included: {', '.join(first)}." in html_text
