@@ -15,7 +15,9 @@ Every view is drawn by :func:`plot` (also :meth:`SweepResult.plot`) and returns 
 ``"stability"``
     How often each capacity is chosen when the data are resampled.
 ``"conditioning"``
-    Design conditioning and coefficient size against capacity, where the sweep recorded them
+    Conditioning of the design the fits use (the stable basis: Legendre polynomials of x mapped
+    to [-1, 1], or centred and scaled columns; not raw powers) and coefficient size against
+    capacity, where the sweep recorded them
     (least-squares ladders on the exact engine).
 
 matplotlib is an optional dependency: ``pip install "complexity[plot]"``. Figures are built
@@ -516,7 +518,7 @@ def _draw_conditioning(result: SweepResult, ax: Axes, *, below: bool = False) ->
                 _column(result, cond),
                 "s",
                 "train",
-                "design condition number",
+                "condition number of the stable basis the fits use (not raw powers)",
                 "condition",
                 f"condition number ({cond})",
             )
@@ -541,7 +543,7 @@ def _draw_conditioning(result: SweepResult, ax: Axes, *, below: bool = False) ->
     _mark_recommended(first, result, x[pos])
     handles.append(next(a for a in first.get_lines() if a.get_gid() == "recommended"))
     _capacity_axis(first, result, x, labels)
-    first.set_title("Design conditioning and coefficient size")
+    first.set_title("Conditioning of the fitted design and coefficient size")
     _legend(first, below, handles=handles)
 
 
