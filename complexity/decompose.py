@@ -59,6 +59,7 @@ __all__ = [
     "no_information_error",
     "relation",
     "replicate_errors",
+    "standard_error_text",
 ]
 
 #: weights of the .632 estimators, rounded as in Efron (1983) and Efron & Tibshirani (1997)
@@ -115,16 +116,50 @@ def _corrected_se(
     return float(np.sqrt((1.0 / J + test_size / train_size) * np.var(scores, ddof=1)))
 
 
+_SE_TEXT = {
+    "bootstrap": "point level: s(e_i) / sqrt(n) over the per-point out-of-bag errors",
+    "simulation": "Monte-Carlo: s(error of each simulated training set) / sqrt(number of sets)",
+    "pass": (
+        "fold level within each K-fold pass, s(CV_k) / sqrt(K), root-mean-square over passes "
+        "(repeats do not shrink it)"
+    ),
+    "corrected": "Nadeau & Bengio (2003) corrected: sqrt((1/J + n_test/n_train) s^2(split scores))",
+}
+
+
+def _se_kind(layout: SplitLayout) -> str:
+    """Which standard error a plan's ``test_mse_se`` is: a key of ``_SE_TEXT``."""
+    if layout.kind in ("bootstrap", "simulation"):
+        return layout.kind
+    if layout.partition and layout.replicate_of is not None:
+        return "pass"
+    return "corrected"
+
+
+def standard_error_text(layout: SplitLayout) -> str:
+    """One line: which standard error ``test_mse_se`` is for this plan (and the rule uses).
+
+    Examples
+    --------
+    >>> from complexity.plans import SplitLayout
+    >>> standard_error_text(SplitLayout("bootstrap", 30, 30.0, 11.0, True, False))[:11]
+    'point level'
+    """
+    return _SE_TEXT[_se_kind(layout)]
+
+
 def _test_error_se(
     acc: PointAccumulator, c: int, e: NDArray[np.float64], layout: SplitLayout
 ) -> float:
     """The standard error of ``test_mse`` that the one-standard-error rule uses (see the notes)."""
     loss, n = acc.resample_loss[:, c], acc.resample_n[:, c]
-    if layout.kind == "simulation":
+    kind = _se_kind(layout)
+    if kind == "simulation":
         return _split_se(loss, n)
-    if layout.kind == "bootstrap":
+    if kind == "bootstrap":
         return float(np.std(e, ddof=1) / np.sqrt(e.size)) if e.size > 1 else float("nan")
-    if layout.partition and layout.replicate_of is not None:
+    if kind == "pass":
+        assert layout.replicate_of is not None
         return _pass_se(loss, n, layout.replicate_of)
     return _corrected_se(loss, n, layout.train_size, layout.test_size)
 
@@ -174,9 +209,8 @@ def _parts(
     # N = n - 1 other rows, times N / d, estimates the variance at training size r; exact for a
     # mean, conservative in general (Efron & Stein 1981). Law of total variance: Var(fit of size
     # r) = Var(fbar_i) + E[spread of the fits around fbar_i], so Var(fbar_i) ~ (N/d - 1) * spread.
-    jackknife = float(np.mean(s2)) * (layout.n_obs - 1) / left_out
     if spread_of_mean is None:
-        return jackknife, 0.0, ""
+        return float(np.mean(s2)) * (layout.n_obs - 1) / left_out, 0.0, ""
     # least squares: Var(fbar_i) from the closed form sigma² h/(1-h), which is far steadier than
     # the jackknife at high degree (whose few wild fits there make it heavy-tailed). It leaves out
     # the part due to which x values were drawn, small beside the squared bias of a too simple fit

@@ -52,6 +52,10 @@ __all__ = [
 
 _T = TypeVar("_T")
 
+#: the words with which an estimate's ``detail`` says that repeated rows were not used as
+#: replicates (too few: accidental ties); the sweep looks for them to add a note
+NOT_REPLICATES = "not pure error from"
+
 # Values of ``NoiseEstimate.method``.
 _METHODS: tuple[str, ...] = ("replicates", "differences", "neighbours", "given", "curve-bound")
 
@@ -671,7 +675,7 @@ more precise than pseudo-residual differences (effective df ≈ 1.38) and unbias
         return _pure_estimate(
             pure, f"{better} {alt.name} (effective df ≈ {alt.df_eff:.3g}) and unbiased for any f"
         )
-    why = f"; not pure error from {pure.rows} repeated rows: " + ", ".join(reasons)
+    why = f"; {NOT_REPLICATES} {pure.rows} repeated rows: " + ", ".join(reasons)
     return _alternative_estimate(alt, why)
 
 

@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
+from sklearn import model_selection
 from sklearn.model_selection import KFold
 
 from ._streams import bootstrap_draws
@@ -549,16 +550,14 @@ _EXCHANGEABLE_SPLITTERS = ("KFold", "RepeatedKFold", "ShuffleSplit")
 
 def _splitter_exchangeable(splitter: Any) -> tuple[bool, str]:
     name = type(splitter).__name__
-    from sklearn import model_selection as ms
-
-    known = tuple(getattr(ms, k) for k in _EXCHANGEABLE_SPLITTERS)
+    known = tuple(getattr(model_selection, k) for k in _EXCHANGEABLE_SPLITTERS)
     if type(splitter) not in known:
         return False, (
             f"{name}'s training sets are not known to be random subsets of the other rows (groups, "
             "time order or strata shape them), so the spread of its predictions is not a sampling "
             "variance"
         )
-    if isinstance(splitter, ms.KFold) and not splitter.shuffle:
+    if isinstance(splitter, KFold) and not splitter.shuffle:
         return False, (
             "KFold(shuffle=False) cuts contiguous folds, which are not random subsets of the rows"
         )
@@ -596,10 +595,10 @@ def split_layout(plan: Plan, resamples: Sequence[Resample], n_obs: int) -> Split
     train = np.array([len(r.train) for r in resamples], dtype=np.float64)
     test = np.array([len(r.test) for r in resamples], dtype=np.float64)
     replicate_of = np.array([r.replicate for r in resamples], dtype=np.intp)
-    scored = np.zeros((int(replicate_of.max()) + 1, n_obs), dtype=np.int64)
-    for r in resamples:
-        scored[r.replicate, r.test] += 1
-    partition = bool((scored == 1).all())
+    # no row is scored twice within a replicate (K-fold by construction; the splitter adapter
+    # starts a new replicate when a row comes back), so a replicate is a partition exactly when
+    # its test sets add up to every row
+    partition = bool((np.bincount(replicate_of, weights=test) == n_obs).all())
     if isinstance(plan, CrossValidation):
         exchangeable = plan.shuffle
         reason = (

@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from ._validation import _short_repr, check_X_y
+from .result import CURVE_COLUMNS
 
 if TYPE_CHECKING:  # pragma: no cover
     from .ladders import Ladder
@@ -73,13 +74,7 @@ _COLUMN_WORDS: dict[str, str] = {
 }
 
 _MAIN_COLUMNS: tuple[str, ...] = (
-    "train_mse",
-    "test_mse",
-    "test_mse_se",
-    "bias_sq",
-    "variance",
-    "oob_excess",
-    "noise",
+    *CURVE_COLUMNS,
     "bias_sq_plus_noise",
     "test_mse_632",
     "test_mse_632plus",

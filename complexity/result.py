@@ -47,8 +47,9 @@ CAUTION = (
 )
 
 
-#: columns of the summary table, when present (``oob_excess`` only where it is not zero)
-_SUMMARY_COLUMNS = (
+#: the main curve columns in display order: the summary table shows these when present
+#: (``oob_excess`` only where it is not zero); the report's curves table starts with them
+CURVE_COLUMNS = (
     "train_mse",
     "test_mse",
     "test_mse_se",
@@ -163,7 +164,7 @@ class SweepResult:
         name = self.capacity_name
         shown = [
             c
-            for c in _SUMMARY_COLUMNS
+            for c in CURVE_COLUMNS
             if c in self.curves and (c != "oob_excess" or self.curves[c].fillna(0).any())
         ]
         extra = [c for c in ("loocv", "aicc", "bic") if c in self.curves]

@@ -90,8 +90,9 @@ class ComplexitySelector(RegressorMixin, BaseEstimator):
         :class:`~complexity.PolynomialLadder`, :class:`~complexity.FeatureLadder` or
         :class:`~complexity.ParamLadder`. Stored as given; the sweep never fits it in place.
     plan : Plan, scikit-learn splitter or int, optional
-        Where the training sets of the sweep come from (default ``CrossValidation(10, n_repeats=10)``, as :func:`complexity.sweep`; an int K
-        means ``CrossValidation(K)``).
+        Where the training sets of the sweep come from (default
+        ``CrossValidation(10, n_repeats=10)``, as :func:`complexity.sweep`; an int K means
+        ``CrossValidation(K)``).
     rule : str, default="one-se"
         The rule that picks the capacity: ``"min"``, ``"one-se"``, or for least-squares ladders
         on the exact engine ``"loocv"``, ``"gcv"``, ``"aic"``, ``"aicc"``, ``"bic"``, ``"cp"``.

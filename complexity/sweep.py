@@ -28,11 +28,11 @@ from ._validation import (
 )
 from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
-from .decompose import curves_table, relation, replicate_errors
+from .decompose import curves_table, relation, replicate_errors, standard_error_text
 from .engine import FullFit, Problem
 from .engine import generic as generic_engine
 from .ladders import Ladder
-from .noise import NoiseEstimate, check_against_curve, estimate_noise
+from .noise import NOT_REPLICATES, NoiseEstimate, check_against_curve, estimate_noise
 from .plans import Plan, Simulation, as_plan, default_plan, split_layout
 from .result import SweepResult, _failures_frame
 from .rules import CRITERIA, RULES, choose, rule_table, stability
@@ -114,17 +114,6 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
             detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
         )
     return estimate_noise(X, y, noise)
-
-
-_SE_TEXT = {
-    "bootstrap": "point level: s(e_i) / sqrt(n) over the per-point out-of-bag errors",
-    "simulation": "Monte-Carlo: s(error of each simulated training set) / sqrt(number of sets)",
-    "pass": (
-        "fold level within each K-fold pass, s(CV_k) / sqrt(K), root-mean-square over passes "
-        "(repeats do not shrink it)"
-    ),
-    "corrected": "Nadeau & Bengio (2003) corrected: sqrt((1/J + n_test/n_train) s^2(split scores))",
-}
 
 
 def _edge_notes(table: pd.DataFrame, capacities: tuple[Any, ...], name: str) -> list[str]:
@@ -374,7 +363,7 @@ def sweep(
     if w is not None and engine_used != "generic":  # pragma: no cover - guarded in supports()
         raise ValueError("sample_weight needs the generic engine.")
     noise_est = _noise_for(noise, plan, Xd, yd)
-    if "not pure error from" in noise_est.detail:  # a few repeated rows: accidental ties
+    if NOT_REPLICATES in noise_est.detail:  # a few repeated rows: accidental ties
         notes.append(
             "some x values repeat, but too few to measure the noise as pure error (accidental "
             f"ties or duplicated records?): {noise_est.detail}."
@@ -428,7 +417,7 @@ def sweep(
     layout = split_layout(plan, resamples, X_eval.shape[0])
     leverage = _leverage(full, engine_used, problem)
 
-    def table(noise_value: float) -> tuple[pd.DataFrame, list[str]]:
+    def curves_at(noise_value: float) -> tuple[pd.DataFrame, list[str]]:
         return curves_table(
             acc,
             ladder.capacities,
@@ -441,18 +430,18 @@ def sweep(
             leverage=leverage,
         )
 
-    curves, more_notes = table(noise_est.value)
+    curves, more_notes = curves_at(noise_est.value)
     if not isinstance(plan, Simulation):
         guarded, noise_note = check_against_curve(
             noise_est, curves["test_mse"].to_numpy(), curves["test_mse_se"].to_numpy()
         )
-        if guarded is not noise_est and guarded.method == "curve-bound":
-            n_params = None if full is None or full.diagnostics is None else full.diagnostics
+        if guarded is not noise_est:  # replaced by the curve's bound
+            diagnostics = None if full is None else full.diagnostics
             guarded, used = _residual_mean_square(
-                guarded, curves, n_params, n_obs, ladder.capacity_name
+                guarded, curves, diagnostics, n_obs, ladder.capacity_name
             )
             noise_note += f" Used instead: {used}."
-            curves, more_notes = table(guarded.value)
+            curves, more_notes = curves_at(guarded.value)
         noise_est = guarded
         if noise_note:
             notes.append(noise_note)
@@ -520,11 +509,7 @@ def sweep(
         "decomposition": {
             "training_size": layout.train_size,
             "relation": relation(layout),
-            "test_mse_se": _SE_TEXT[
-                layout.kind
-                if layout.kind in ("bootstrap", "simulation")
-                else ("pass" if layout.partition else "corrected")
-            ],
+            "test_mse_se": standard_error_text(layout),
         },
         "versions": _versions(),
         "run_seconds": round(time.perf_counter() - started, 4),
