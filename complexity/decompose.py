@@ -190,7 +190,12 @@ def _parts(
     # Var(fbar_i): the variance, from data set to data set, of a point's average out-of-sample
     # prediction. For least squares the average is close to the fit on the other n - 1 rows,
     # whose variance given x is sigma² h_i / (1 - h_i) (Gauss-Markov, METHODS.md §1).
-    spread_of_mean = None if q is None else noise * q
+    spread_of_mean = None if q is None else (noise * q if noise > 0 else np.zeros_like(q))
+    if spread_of_mean is not None and not np.isfinite(spread_of_mean).all():
+        # the full-data fit interpolates some point (leverage 1): no closed form there
+        if layout.kind != "bootstrap":
+            return np.nan, 0.0, _INTERPOLATES
+        return (float(np.mean(s2)) if s2.size >= 2 else np.nan), np.nan, _INTERPOLATES
     if layout.kind == "bootstrap":
         if s2.size < 2:
             return np.nan, np.nan, _ONCE
@@ -220,6 +225,11 @@ def _parts(
 _ONCE = (
     "variance and bias_sq need every point predicted by at least two models; this plan predicts "
     "each point once (use CrossValidation(..., n_repeats=2) or more, or Bootstrap)"
+)
+_INTERPOLATES = (
+    "the fit on all the data passes through some points exactly (leverage 1, as many "
+    "coefficients as distinct x nearby), so the variance of their average out-of-sample "
+    "prediction has no closed form"
 )
 _LOO = (
     "leave-one-out trains every model of a point on all the other rows, so its predictions never "
@@ -389,10 +399,12 @@ def curves_table(
             )
         err = float(np.mean(pp["e"])) if n_pts else np.nan
         var, excess, why = _parts(pp, q, noise, layout) if n_pts else (np.nan, np.nan, _ONCE)
-        if why:
-            reasons.setdefault(why, []).append(str(capacities[c]))
         if not np.isfinite(var):
             var = np.nan
+        if why:
+            empty = [k for k, v in (("variance", var), ("oob_excess", excess)) if np.isnan(v)]
+            columns = ", ".join(empty) + " and bias_sq" if empty else "bias_sq"
+            reasons.setdefault((columns, why), []).append(str(capacities[c]))
         nb2 = err - var - excess  # noise + squared bias
         row["test_mse"] = noise + err if simulated else err
         row["test_mse_se"] = _test_error_se(acc, c, pp["e"], layout) if n_pts else np.nan
@@ -417,9 +429,9 @@ def curves_table(
         row["failed_fits"] = int(acc.failures.count[c])
         rows.append(row)
     curves = pd.DataFrame(rows, index=capacity_index(capacities, capacity_name))
-    for why, where in reasons.items():
+    for (columns, why), where in reasons.items():
         at = "" if len(where) == len(capacities) else f" ({capacity_name} {', '.join(where)})"
-        notes.append(f"variance and bias_sq are left empty{at}: {why}.")
+        notes.append(f"{columns} are left empty{at}: {why}.")
     if not simulated and (curves["bias_sq"] < 0).any():
         neg = [str(k) for k in curves.index[curves["bias_sq"] < 0]]
         notes.append(

@@ -530,3 +530,18 @@ def test_accidental_ties_are_not_taken_for_replicates():
         )
     assert result.noise.method == "differences"
     assert 9_000 < result.noise.value < 14_000
+
+
+@pytest.mark.parametrize("plan", [cx.Bootstrap(20), cx.CrossValidation(5, n_repeats=2)])
+def test_interpolated_points_leave_the_closed_form_variance_empty_with_a_note(plan):
+    # degree 2 through 4 distinct x, one of them alone: the full-data fit passes through it
+    # (leverage 1), so sigma² h / (1 - h) is undefined there (METHODS.md §1); found by the
+    # hostile-input fuzzing
+    x = np.array([0.0] * 8 + [1.0, 2.8646e4, 6.676e3])
+    y = np.r_[np.zeros(10), 1.0]
+    result = _quiet_sweep(cx.PolynomialLadder([0, 1, 2]), x, y, plan=plan, random_state=0)
+    row = result.curves.loc[2]
+    assert np.isnan(row["bias_sq"])
+    if isinstance(plan, cx.CrossValidation):
+        assert row["oob_excess"] == 0.0  # K-fold has no out-of-bag excess
+    assert any("passes through some points exactly" in n for n in result.notes)
