@@ -382,13 +382,16 @@ def curves_table(
     notes: list[str] = []
     reasons: dict[str, list[str]] = {}
     rows = []
-    count = acc.count
+    # one contiguous row per capacity (the accumulators are points x capacities)
+    count, mean, m2 = (np.ascontiguousarray(a.T) for a in (acc.count, acc.mean, acc.m2))
     for c in range(len(capacities)):
-        scored = count[:, c] >= 1
-        pp = _point_values(count[scored, c], acc.mean[scored, c], acc.m2[scored, c])
+        scored = count[c] >= 1
+        every = bool(scored.all())  # the usual case: no selection to copy
+        pick = slice(None) if every else scored
+        pp = _point_values(count[c, pick], mean[c, pick], m2[c, pick])
         q = None
         if leverage is not None and not simulated:
-            q = _out_of_sample_leverage(np.asarray(leverage[c], dtype=np.float64)[scored])
+            q = _out_of_sample_leverage(np.asarray(leverage[c], dtype=np.float64)[pick])
         n_pts = pp["e"].size
         row: dict[str, Any] = {}
         if train_mse is not None:
