@@ -17,13 +17,18 @@ True
 from importlib.metadata import PackageNotFoundError, version
 
 from . import datasets
-from .checkpoint import CheckpointMismatchError
+from .exceptions import (
+    CapacityWarning,
+    CheckpointMismatchError,
+    ExtrapolationWarning,
+    SweepFailedError,
+)
 from .ladders import FeatureLadder, Ladder, ParamLadder, PolynomialLadder
 from .noise import NoiseEstimate, estimate_noise
 from .plans import Bootstrap, CrossValidation, Plan, Simulation
 from .result import SweepResult, load_result
-from .selector import ComplexitySelector, ExtrapolationWarning
-from .sweep import CapacityWarning, SweepFailedError, sweep
+from .selector import ComplexitySelector
+from .sweep import sweep
 
 try:
     __version__ = version("complexity")

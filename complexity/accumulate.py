@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from .engine import Outcome
+from ._contract import Outcome
 
 __all__ = [
     "PointAccumulator",

@@ -43,8 +43,9 @@ from typing import Any
 
 import numpy as np
 
+from ._contract import Outcome, Problem
 from ._validation import _short_repr, as_seed_sequence
-from .engine import Outcome, Problem
+from .exceptions import CheckpointMismatchError
 from .plans import Resample
 
 __all__ = ["CheckpointMismatchError", "fingerprint", "resume", "seed_for"]
@@ -54,26 +55,6 @@ VERSION = 1
 MANIFEST = "checkpoint.json"
 _PREFIX, _SUFFIX, _TMP = "resample-", ".npz", ".tmp-"
 _FAILURE_KEYS = ("failures__capacity", "failures__message")
-
-
-class CheckpointMismatchError(ValueError):
-    """A checkpoint folder holds work from a different sweep (data, ladder, plan, seed, ...).
-
-    Examples
-    --------
-    >>> import tempfile
-    >>> import complexity as cx
-    >>> X, y = cx.datasets.pressure_sensor()
-    >>> with tempfile.TemporaryDirectory() as folder:
-    ...     _ = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5),
-    ...                  random_state=0, checkpoint=folder)
-    ...     try:
-    ...         cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5),
-    ...                  random_state=1, checkpoint=folder)
-    ...     except CheckpointMismatchError as exc:
-    ...         print("seed: stored" in str(exc))
-    True
-    """
 
 
 # --------------------------------------------------------------------------- path and seed

@@ -17,6 +17,8 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any, NoReturn
 
+from .exceptions import InputError, SweepFailedError
+
 __all__ = ["main"]
 
 #: A sweep needs rows to train on and rows to leave out; fewer than this is refused up front.
@@ -24,10 +26,6 @@ MIN_ROWS = 5
 
 _VIEWS = ("errors", "parts", "fits", "stability", "conditioning")
 _RULES = ("one-se", "min", "loocv", "gcv", "aic", "aicc", "bic", "cp")
-
-
-class InputError(Exception):
-    """A problem with the user's input, reported as one line without a traceback."""
 
 
 class _Parser(argparse.ArgumentParser):
@@ -605,7 +603,6 @@ def main(argv: Sequence[str] | None = None) -> int:
     >>> main(["sweep", "no-such-file.csv", "--target", "y"])
     1
     """
-    from .sweep import SweepFailedError
 
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = _parser()

@@ -25,6 +25,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from ._validation import _short_repr
 from .engine.generic import _seed_estimator, _weight_kwargs
+from .exceptions import ExtrapolationWarning
 from .ladders import Ladder, PolynomialLadder
 from .plans import STREAM_FULL_FIT, child_seed
 from .sweep import sweep
@@ -35,13 +36,6 @@ except ImportError:  # pragma: no cover - older scikit-learn
     _sk_validate_data = None
 
 __all__ = ["ComplexitySelector", "ExtrapolationWarning"]
-
-
-class ExtrapolationWarning(UserWarning):
-    """A fitted polynomial is asked for predictions outside the x range it was fitted on.
-
-    Polynomials diverge quickly beyond their data; such predictions are extrapolations.
-    """
 
 
 def _validate(est: BaseEstimator, X: Any, y: Any = "no_validation", **kw: Any) -> Any:

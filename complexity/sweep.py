@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ._contract import FullFit, Problem
 from ._progress import FitCounter
 from ._validation import (
     _short_repr,
@@ -29,8 +30,8 @@ from ._validation import (
 from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, relation, replicate_errors, standard_error_text
-from .engine import FullFit, Problem
 from .engine import generic as generic_engine
+from .exceptions import CapacityWarning, SweepFailedError
 from .ladders import Ladder
 from .noise import NOT_REPLICATES, NoiseEstimate, check_against_curve, estimate_noise
 from .plans import Plan, Simulation, as_plan, default_plan, split_layout
@@ -40,14 +41,6 @@ from .rules import CRITERIA, RULES, choose, rule_table, stability
 __all__ = ["CapacityWarning", "SweepFailedError", "sweep"]
 
 ENGINES = ("auto", "exact", "generic")
-
-
-class SweepFailedError(RuntimeError):
-    """Raised when every fit at every capacity failed."""
-
-
-class CapacityWarning(UserWarning):
-    """A capacity is fragile on this data (e.g. it interpolates, or fits failed)."""
 
 
 def _versions() -> dict[str, str]:

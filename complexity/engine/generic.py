@@ -16,10 +16,10 @@ from joblib import Parallel, delayed
 from numpy.typing import NDArray
 from sklearn.base import clone
 
+from .._contract import FullFit, Outcome, Problem
 from ..accumulate import Tally, tallies
 from ..accumulate import block_size as _points_block_size
 from ..plans import STREAM_ESTIMATOR, STREAM_FULL_FIT, Resample, child_seed
-from . import FullFit, Outcome, Problem
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies"]
 

@@ -32,10 +32,11 @@ import numpy as np
 import scipy.linalg
 from numpy.typing import ArrayLike, NDArray
 
+from .._contract import FullFit, Outcome, Problem
 from .._validation import row_groups
 from ..accumulate import Tally, TallyBuilder, tally
 from ..basis import PolynomialBasis, _exact_residuals
-from . import FullFit, Outcome, Problem
+from ..exceptions import CapacityWarning
 
 __all__ = [
     "NestedFit",
@@ -1593,8 +1594,6 @@ def _fit_full(problem: Problem) -> FullFit:
         except ValueError as exc:  # no model leaves a usable noise estimate for Cp
             table = criteria_table(*args, **guard, sigma2=1.0)
             table[["cp", "fixed_design_variance"]] = np.nan
-            from ..sweep import CapacityWarning
-
             warnings.warn(
                 f"Mallows' Cp and the fixed-design variance are left empty: {exc}",
                 CapacityWarning,
@@ -1620,8 +1619,6 @@ def _fit_full(problem: Problem) -> FullFit:
     if not isinstance(problem.ladder, PolynomialLadder):  # PolynomialLadder says it up front
         full_caps = [caps[c] for c in range(C) if design.n_cols[c] >= distinct]
         if full_caps:
-            from ..sweep import CapacityWarning
-
             warnings.warn(
                 f"{problem.ladder.capacity_name} {full_caps} use(s) as many coefficients as there "
                 f"are distinct rows ({distinct}): the fit interpolates and its training error "
