@@ -37,7 +37,6 @@ import json
 import os
 import tempfile
 from collections.abc import Callable, Iterator, Sequence
-from importlib import metadata as _md
 from pathlib import Path
 from typing import Any
 
@@ -45,6 +44,7 @@ import numpy as np
 
 from ._contract import Outcome, Problem
 from ._validation import _short_repr, as_seed_sequence
+from ._versions import installed_versions
 from .exceptions import CheckpointMismatchError
 from .plans import Resample
 
@@ -168,16 +168,6 @@ def _jsonable(value: Any) -> Any:
     return json.loads(json.dumps(value, default=repr, sort_keys=True))
 
 
-def _versions() -> dict[str, str]:
-    out = {}
-    for pkg in ("complexity", "numpy", "scipy", "scikit-learn"):
-        try:
-            out[pkg] = _md.version(pkg)
-        except _md.PackageNotFoundError:
-            out[pkg] = "unknown"
-    return out
-
-
 def fingerprint(problem: Problem, resamples: Sequence[Resample], engine: str) -> dict[str, Any]:
     """What the outcomes of a sweep depend on, as a JSON-friendly dict.
 
@@ -231,7 +221,9 @@ def fingerprint(problem: Problem, resamples: Sequence[Resample], engine: str) ->
             "plan": problem.plan.describe(),
             "seed": {"entropy": entropy, "spawn_key": list(root.spawn_key)},
             "engine": engine,
-            "versions": _versions(),
+            "versions": installed_versions(
+                ("complexity", "numpy", "scipy", "scikit-learn"), python=False
+            ),
             "n_resamples": len(resamples),
             "n_capacities": problem.n_capacities,
             "training_sets": _hash_training_sets(resamples) if splitter else None,

@@ -7,18 +7,17 @@ fits every capacity on every resample -> accumulators -> decomposition -> rules 
 from __future__ import annotations
 
 import dataclasses
-import functools
-import platform
+import os
 import sys
 import time
 import warnings
-from importlib import metadata as _md
 from typing import Any
 
 import numpy as np
 import pandas as pd
+from numpy.typing import ArrayLike
 
-from ._contract import FullFit, Problem
+from ._contract import Engine, FullFit, Problem
 from ._progress import FitCounter
 from ._validation import (
     _short_repr,
@@ -27,10 +26,12 @@ from ._validation import (
     check_sample_weight,
     check_X_y,
 )
+from ._versions import installed_versions
 from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, relation, replicate_errors, standard_error_text
 from .engine import generic as generic_engine
+from .engine import linear as linear_engine
 from .exceptions import CapacityWarning, SweepFailedError
 from .ladders import Ladder
 from .noise import NOT_REPLICATES, NoiseEstimate, check_against_curve, estimate_noise
@@ -43,37 +44,14 @@ __all__ = ["CapacityWarning", "SweepFailedError", "sweep"]
 ENGINES = ("auto", "exact", "generic")
 
 
-def _versions() -> dict[str, str]:
-    return dict(_installed_versions())
+def _fits_exact(problem: Problem) -> bool:
+    """Whether the exact least-squares engine can run this problem."""
+    return bool(problem.ladder.linear_least_squares) and linear_engine.supports(problem)
 
 
-@functools.lru_cache(maxsize=1)
-def _installed_versions() -> tuple[tuple[str, str], ...]:
-    """Looked up once per process: reading package metadata costs milliseconds per sweep."""
-    out = {"python": platform.python_version()}
-    for pkg in ("complexity", "numpy", "scipy", "scikit-learn", "pandas", "joblib"):
-        try:
-            out[pkg] = _md.version(pkg)
-        except _md.PackageNotFoundError:
-            out[pkg] = "unknown"
-    return tuple(out.items())
-
-
-def _linear_engine() -> Any:
-    """The exact least-squares engine module, or None where it is not available."""
-    try:
-        from .engine import linear
-    except ImportError:
-        return None
-    return linear if hasattr(linear, "run") and hasattr(linear, "supports") else None
-
-
-def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
+def _choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:
     check_option("engine", engine, ENGINES)
-    linear = _linear_engine()
-    fits_exact = (
-        linear is not None and problem.ladder.linear_least_squares and linear.supports(problem)
-    )
+    fits_exact = _fits_exact(problem)
     if engine == "exact" and not fits_exact:
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
@@ -82,7 +60,7 @@ def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
         )
     if engine == "generic" or not fits_exact:
         return generic_engine, "generic"
-    return linear, "exact"
+    return linear_engine, "exact"
 
 
 def _check_weight_support(models: list[Any]) -> None:
@@ -166,12 +144,11 @@ def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.nd
         return None
     if engine_used == "exact":
         return full.leverage
-    linear = _linear_engine()
-    if linear is None or not problem.ladder.linear_least_squares or not linear.supports(problem):
+    if not _fits_exact(problem):
         return None
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # the engine's own warnings were given by its run
-        return linear.fit_full(problem).leverage
+        return linear_engine.fit_full(problem).leverage
 
 
 def _stability(
@@ -221,22 +198,257 @@ def _all_failed_error(
     )
 
 
+@dataclasses.dataclass
+class _Posed:
+    """The problem a sweep poses, with what was learnt while posing it."""
+
+    problem: Problem
+    n_obs: int | None  # rows of observed data (None for a simulation without data)
+    names: list[str] | None  # predictor names (DataFrame columns)
+    notes: list[str]
+
+
+def _check_arguments(
+    ladder: Any, rule: str, n_jobs: int | None, progress: Any, keep_predictions: Any
+) -> None:
+    if not isinstance(ladder, Ladder):
+        raise TypeError(
+            "ladder must be cx.PolynomialLadder(...), cx.FeatureLadder(...) or cx.ParamLadder(...); "
+            f"got {_short_repr(ladder)}."
+        )
+    check_option("rule", rule, RULES)
+    check_n_jobs(n_jobs)
+    for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
+        if not isinstance(flag, (bool, np.bool_)):
+            raise TypeError(f"{name} must be True or False; got {_short_repr(flag)}.")
+
+
+def _pose(
+    ladder: Ladder,
+    X: Any,
+    y: Any,
+    plan: Plan | None,
+    groups: Any,
+    sample_weight: Any,
+    root: np.random.SeedSequence,
+) -> _Posed:
+    """Validate the data and build one model per capacity: the :class:`Problem` engines run."""
+    if isinstance(plan, Simulation):
+        n_obs = None if X is None and y is None else check_X_y(X, y).X.shape[0]
+        design = plan.pilot_design(root)
+        notes = ladder.check_data(design, None)
+        problem = Problem(
+            ladder=ladder,
+            models=ladder.build(design, None),
+            X=None,
+            y=None,
+            X_eval=plan.x_eval,
+            target=plan.target,
+            plan=plan,
+            root=root,
+            design_X=design,
+        )
+        return _Posed(problem, n_obs, None, notes)
+    data = check_X_y(X, y, groups=groups)
+    Xd, yd, names = data.X, data.y, data.feature_names
+    n_obs = Xd.shape[0]
+    w = check_sample_weight(sample_weight, n_obs)  # a validated copy, or None
+    notes = ladder.check_data(Xd, names)
+    models = ladder.build(Xd, names)
+    if w is not None:
+        _check_weight_support(models)
+    problem = Problem(
+        ladder=ladder,
+        models=models,
+        X=Xd,
+        y=yd,
+        X_eval=Xd,
+        target=yd,
+        plan=plan if plan is not None else default_plan(n_obs),
+        root=root,
+        design_X=Xd,
+        groups=data.groups,
+        sample_weight=w,
+        feature_names=tuple(str(v) for v in names) if names else None,
+    )
+    return _Posed(problem, n_obs, list(names) if names else None, notes)
+
+
+def _accumulate(
+    eng: Engine,
+    engine_used: str,
+    problem: Problem,
+    resamples: Any,
+    acc: PointAccumulator,
+    *,
+    n_jobs: int | None,
+    progress: bool,
+    checkpoint: Any,
+    keep_predictions: bool,
+) -> None:
+    """Run the engine over every resample and fold what comes back into ``acc``."""
+    C = problem.n_capacities
+    counter = FitCounter(len(resamples) * C, progress)
+    try:
+        if checkpoint is None and not keep_predictions:
+            # each block of resamples is reduced to its tally where it was fitted
+            for part in eng.run_tallies(problem, resamples, n_jobs=n_jobs, on_done=counter.update):
+                acc.merge(part)
+            return
+        if checkpoint is None:
+            outcomes = eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
+        else:
+            outcomes = resume(
+                checkpoint,
+                eng,
+                engine_used,
+                problem,
+                resamples,
+                n_jobs=n_jobs,
+                on_done=counter.update,
+            )
+        n_eval = problem.X_eval.shape[0]
+        for part in tallies(outcomes, eng.block_size(problem), n_eval, C, acc.keep):
+            acc.merge(part)
+    finally:
+        counter.close()
+
+
+def _decompose(
+    acc: PointAccumulator,
+    problem: Problem,
+    full: FullFit | None,
+    layout: Any,
+    noise_est: NoiseEstimate,
+    leverage: np.ndarray | None,
+    n_obs: int | None,
+) -> tuple[pd.DataFrame, NoiseEstimate, list[str]]:
+    """The curves table at the noise estimate, checked against the test-error curve itself.
+
+    A noise estimate above what the test-error curve allows (METHODS.md §7.2) is replaced by the
+    curve's bound (or a residual mean square below it) and the table recomputed.
+    """
+    ladder = problem.ladder
+
+    def curves_at(noise_value: float) -> tuple[pd.DataFrame, list[str]]:
+        return curves_table(
+            acc,
+            ladder.capacities,
+            ladder.capacity_name,
+            noise=noise_value,
+            layout=layout,
+            train_mse=None if full is None else full.train_mse,
+            y=problem.y,
+            fitted=None if full is None else full.fitted,
+            leverage=leverage,
+        )
+
+    notes: list[str] = []
+    curves, table_notes = curves_at(noise_est.value)
+    if not problem.simulated:
+        guarded, noise_note = check_against_curve(
+            noise_est, curves["test_mse"].to_numpy(), curves["test_mse_se"].to_numpy()
+        )
+        if guarded is not noise_est:  # replaced by the curve's bound
+            diagnostics = None if full is None else full.diagnostics
+            guarded, used = _residual_mean_square(
+                guarded, curves, diagnostics, n_obs, ladder.capacity_name
+            )
+            noise_note += f" Used instead: {used}."
+            curves, table_notes = curves_at(guarded.value)
+        noise_est = guarded
+        if noise_note:
+            notes.append(noise_note)
+    notes += table_notes
+    if full is not None:
+        notes += full.notes
+        for extra in (full.criteria, full.diagnostics):
+            if extra is not None:
+                for col in extra.columns:
+                    curves[col] = extra[col].to_numpy()
+    return curves, noise_est, notes
+
+
+def _failures(
+    acc: PointAccumulator, full: FullFit | None, ladder: Ladder
+) -> tuple[pd.DataFrame, list[str]]:
+    """One row per capacity where some fit failed (resampled or full-data), and its note."""
+    failed = {}
+    for c in range(len(ladder.capacities)):
+        count = int(acc.failures.count[c]) + (1 if full is not None and c in full.failures else 0)
+        if count:
+            first = acc.failures.first.get(c) or (full.failures.get(c) if full else "")
+            failed[ladder.capacities[c]] = (count, first)
+    failures = _failures_frame(
+        [(cap, cnt, msg) for cap, (cnt, msg) in failed.items()], ladder.capacity_name
+    )
+    if not len(failures):
+        return failures, []
+    return failures, [
+        f"{int(failures['count'].sum())} fit(s) failed at {ladder.capacity_name} "
+        f"{', '.join(str(k) for k in failures.index)}; see result.failures."
+    ]
+
+
+def _metadata(
+    posed: _Posed,
+    resamples: Any,
+    n_replicates: int,
+    random_state: Any,
+    engine_used: str,
+    rule: str,
+    stab_note: str,
+    layout: Any,
+    started: float,
+) -> dict[str, Any]:
+    problem = posed.problem
+    root, plan, ladder, design = problem.root, problem.plan, problem.ladder, problem.design_X
+    return {
+        "n_samples": posed.n_obs,
+        "n_features": int(problem.X_eval.shape[1]),
+        "feature_names": posed.names,
+        "ladder": ladder.describe(),
+        "ladder_repr": repr(ladder),
+        "plan": plan.describe(),
+        "plan_repr": repr(plan),
+        "n_resamples": len(resamples),
+        "n_replicates": n_replicates,
+        "seed_entropy": int(root.entropy) if isinstance(root.entropy, int) else str(root.entropy),
+        "seed_spawn_key": list(root.spawn_key),
+        "random_state": random_state
+        if isinstance(random_state, (int, type(None)))
+        else repr(random_state),
+        "engine": engine_used,
+        "stability_rule": rule,
+        "stability_note": stab_note,
+        "decomposition": {
+            "training_size": layout.train_size,
+            "relation": relation(layout),
+            "test_mse_se": standard_error_text(layout),
+        },
+        "versions": installed_versions(),
+        "run_seconds": round(time.perf_counter() - started, 4),
+        "x_range": [[float(a), float(b)] for a, b in zip(design.min(axis=0), design.max(axis=0))],
+        "command": " ".join(sys.argv[:1]) if sys.argv and sys.argv[0] else None,
+    }
+
+
 def sweep(
     ladder: Ladder,
-    X: Any = None,
-    y: Any = None,
+    X: ArrayLike | pd.DataFrame | None = None,
+    y: ArrayLike | pd.Series | None = None,
     *,
-    plan: Any = None,
-    noise: Any = "auto",
+    plan: Plan | int | Any | None = None,
+    noise: str | float = "auto",
     rule: str = "one-se",
     n_jobs: int | None = None,
-    random_state: Any = None,
+    random_state: int | np.random.SeedSequence | np.random.Generator | None = None,
     progress: bool = False,
     engine: str = "auto",
     keep_predictions: bool = False,
-    groups: Any = None,
-    sample_weight: Any = None,
-    checkpoint: Any = None,
+    groups: ArrayLike | None = None,
+    sample_weight: ArrayLike | None = None,
+    checkpoint: str | os.PathLike[str] | None = None,
 ) -> SweepResult:
     """Sweep a capacity ladder over resampled training sets and recommend a capacity.
 
@@ -299,170 +511,62 @@ def sweep(
     True
     """
     started = time.perf_counter()
-    if not isinstance(ladder, Ladder):
-        raise TypeError(
-            "ladder must be cx.PolynomialLadder(...), cx.FeatureLadder(...) or cx.ParamLadder(...); "
-            f"got {_short_repr(ladder)}."
-        )
-    plan = as_plan(plan) if plan is not None else None
-    check_option("rule", rule, RULES)
-    check_n_jobs(n_jobs)
-    for name, flag in (("progress", progress), ("keep_predictions", keep_predictions)):
-        if not isinstance(flag, (bool, np.bool_)):
-            raise TypeError(f"{name} must be True or False; got {_short_repr(flag)}.")
+    _check_arguments(ladder, rule, n_jobs, progress, keep_predictions)
+    given_plan = as_plan(plan) if plan is not None else None
     root = seed_for(checkpoint, random_state)  # resuming without a seed reuses the stored one
-    notes: list[str] = []
 
-    if isinstance(plan, Simulation):
-        Xd = yd = None
-        n_obs = None
-        if X is not None or y is not None:
-            data = check_X_y(X, y)
-            n_obs = data.X.shape[0]
-        design = plan.pilot_design(root)
-        notes += ladder.check_data(design, None)
-        models = ladder.build(design, None)
-        X_eval, target = plan.x_eval, plan.target
-        w = None
-        names = None
-    else:
-        data = check_X_y(X, y, groups=groups)
-        Xd, yd, names = data.X, data.y, data.feature_names
-        n_obs = Xd.shape[0]
-        if plan is None:
-            plan = default_plan(n_obs)
-        w = check_sample_weight(sample_weight, n_obs)  # a validated copy, or None
-        notes += ladder.check_data(Xd, names)
-        models = ladder.build(Xd, names)
-        X_eval, target, design = Xd, yd, Xd
-        if w is not None:
-            _check_weight_support(models)
-
-    problem = Problem(
-        ladder=ladder,
-        models=models,
-        X=Xd,
-        y=yd,
-        X_eval=X_eval,
-        target=target,
-        plan=plan,
-        root=root,
-        design_X=design,
-        groups=data.groups if not isinstance(plan, Simulation) else None,
-        sample_weight=w,
-        feature_names=tuple(str(v) for v in names) if names else None,
-    )
+    # 1. pose the problem: validated data, one model per capacity, the plan
+    posed = _pose(ladder, X, y, given_plan, groups, sample_weight, root)
+    problem, notes = posed.problem, posed.notes
+    the_plan = problem.plan
     eng, engine_used = _choose_engine(engine, problem)
-    if w is not None and engine_used != "generic":  # pragma: no cover - guarded in supports()
-        raise ValueError("sample_weight needs the generic engine.")
-    noise_est = _noise_for(noise, plan, Xd, yd)
+    noise_est = _noise_for(noise, the_plan, problem.X, problem.y)
     if NOT_REPLICATES in noise_est.detail:  # a few repeated rows: accidental ties
         notes.append(
             "some x values repeat, but too few to measure the noise as pure error (accidental "
             f"ties or duplicated records?): {noise_est.detail}."
         )
 
-    resamples = plan.resamples(
-        X_eval.shape[0] if Xd is None else n_obs, root, Xd, yd, problem.groups
-    )
+    # 2. draw the training sets
+    n_eval = problem.X_eval.shape[0]
+    resamples = the_plan.resamples(n_eval, root, problem.X, problem.y, problem.groups)
     # a lazy plan knows its replicate count; drawing every resample to count them costs a pass
     n_replicates = (
         getattr(resamples, "n_replicates", None) or max(r.replicate for r in resamples) + 1
     )
     inclusion_of = getattr(ladder, "inclusion", None)  # feature ladders: who was among the first k
-    inclusion = inclusion_of(problem, resamples, names) if callable(inclusion_of) else None
-    C = len(ladder.capacities)
-    acc = PointAccumulator(X_eval.shape[0], C, len(resamples), n_replicates, keep_predictions)
+    inclusion = inclusion_of(problem, resamples, posed.names) if callable(inclusion_of) else None
 
-    full: FullFit | None = None
-    if not isinstance(plan, Simulation):
-        full = eng.fit_full(problem)
-
-    counter = FitCounter(len(resamples) * C, progress)
-    try:
-        if checkpoint is None and not keep_predictions:
-            # each block of resamples is reduced to its tally where it was fitted
-            for part in eng.run_tallies(problem, resamples, n_jobs=n_jobs, on_done=counter.update):
-                acc.merge(part)
-        else:
-            outcomes = (
-                eng.run(problem, resamples, n_jobs=n_jobs, on_done=counter.update)
-                if checkpoint is None
-                else resume(
-                    checkpoint,
-                    eng,
-                    engine_used,
-                    problem,
-                    resamples,
-                    n_jobs=n_jobs,
-                    on_done=counter.update,
-                )
-            )
-            n_eval = X_eval.shape[0]
-            for part in tallies(outcomes, eng.block_size(problem), n_eval, C, acc.keep):
-                acc.merge(part)
-    finally:
-        counter.close()
-
+    # 3. fit: once on all the data, then every capacity on every training set
+    full = None if problem.simulated else eng.fit_full(problem)
+    acc = PointAccumulator(
+        n_eval, problem.n_capacities, len(resamples), n_replicates, keep_predictions
+    )
+    _accumulate(
+        eng,
+        engine_used,
+        problem,
+        resamples,
+        acc,
+        n_jobs=n_jobs,
+        progress=progress,
+        checkpoint=checkpoint,
+        keep_predictions=keep_predictions,
+    )
     if acc.count.sum() == 0:
         raise _all_failed_error(acc, full, ladder.capacities)
 
-    layout = split_layout(plan, resamples, X_eval.shape[0])
+    # 4. decompose the accumulated errors into the curves
+    layout = split_layout(the_plan, resamples, n_eval)
     leverage = _leverage(full, engine_used, problem)
-
-    def curves_at(noise_value: float) -> tuple[pd.DataFrame, list[str]]:
-        return curves_table(
-            acc,
-            ladder.capacities,
-            ladder.capacity_name,
-            noise=noise_value,
-            layout=layout,
-            train_mse=None if full is None else full.train_mse,
-            y=yd,
-            fitted=None if full is None else full.fitted,
-            leverage=leverage,
-        )
-
-    curves, more_notes = curves_at(noise_est.value)
-    if not isinstance(plan, Simulation):
-        guarded, noise_note = check_against_curve(
-            noise_est, curves["test_mse"].to_numpy(), curves["test_mse_se"].to_numpy()
-        )
-        if guarded is not noise_est:  # replaced by the curve's bound
-            diagnostics = None if full is None else full.diagnostics
-            guarded, used = _residual_mean_square(
-                guarded, curves, diagnostics, n_obs, ladder.capacity_name
-            )
-            noise_note += f" Used instead: {used}."
-            curves, more_notes = curves_at(guarded.value)
-        noise_est = guarded
-        if noise_note:
-            notes.append(noise_note)
-    notes += more_notes
-    if full is not None:
-        notes += full.notes
-    if full is not None and full.criteria is not None:
-        for col in full.criteria.columns:
-            curves[col] = full.criteria[col].to_numpy()
-    if full is not None and full.diagnostics is not None:
-        for col in full.diagnostics.columns:
-            curves[col] = full.diagnostics[col].to_numpy()
-
-    failed = {}
-    for c in range(C):
-        count = int(acc.failures.count[c]) + (1 if full is not None and c in full.failures else 0)
-        if count:
-            first = acc.failures.first.get(c) or (full.failures.get(c) if full else "")
-            failed[ladder.capacities[c]] = (count, first)
-    failures = _failures_frame(
-        [(cap, cnt, msg) for cap, (cnt, msg) in failed.items()], ladder.capacity_name
+    curves, noise_est, more = _decompose(
+        acc, problem, full, layout, noise_est, leverage, posed.n_obs
     )
-    if len(failures):
-        notes.append(
-            f"{int(failures['count'].sum())} fit(s) failed at {ladder.capacity_name} "
-            f"{', '.join(str(k) for k in failures.index)}; see result.failures."
-        )
+    notes += more
+    failures, more = _failures(acc, full, ladder)
+    notes += more
 
+    # 5. apply the rules
     if rule in CRITERIA and rule not in curves:
         raise ValueError(
             f"rule={rule!r} needs the closed-form criteria of a least-squares ladder on the exact "
@@ -471,44 +575,16 @@ def sweep(
     table = rule_table(curves)
     notes += _edge_notes(table, ladder.capacities, ladder.capacity_name)
     recommended = ladder.capacities[choose(rule, curves)]
-    stab, stab_note = _stability(acc, curves, rule, noise_est.value, plan, n_replicates)
+    stab, stab_note = _stability(acc, curves, rule, noise_est.value, the_plan, n_replicates)
     if stab_note:
         notes.append(stab_note)
     for note in notes:
         warnings.warn(note, CapacityWarning, stacklevel=2)
 
+    # 6. the result
     predictions = None
     if acc.residuals is not None:
-        predictions = acc.residuals + target[None, :, None]
-
-    metadata = {
-        "n_samples": n_obs,
-        "n_features": int(X_eval.shape[1]),
-        "feature_names": list(names) if names else None,
-        "ladder": ladder.describe(),
-        "ladder_repr": repr(ladder),
-        "plan": plan.describe(),
-        "plan_repr": repr(plan),
-        "n_resamples": len(resamples),
-        "n_replicates": n_replicates,
-        "seed_entropy": int(root.entropy) if isinstance(root.entropy, int) else str(root.entropy),
-        "seed_spawn_key": list(root.spawn_key),
-        "random_state": random_state
-        if isinstance(random_state, (int, type(None)))
-        else repr(random_state),
-        "engine": engine_used,
-        "stability_rule": rule,
-        "stability_note": stab_note,
-        "decomposition": {
-            "training_size": layout.train_size,
-            "relation": relation(layout),
-            "test_mse_se": standard_error_text(layout),
-        },
-        "versions": _versions(),
-        "run_seconds": round(time.perf_counter() - started, 4),
-        "x_range": [[float(a), float(b)] for a, b in zip(design.min(axis=0), design.max(axis=0))],
-        "command": " ".join(sys.argv[:1]) if sys.argv and sys.argv[0] else None,
-    }
+        predictions = acc.residuals + problem.target[None, :, None]
     return SweepResult(
         curves=curves,
         recommended=recommended,
@@ -518,7 +594,17 @@ def sweep(
         noise=noise_est,
         failures=failures,
         notes=notes,
-        metadata=metadata,
+        metadata=_metadata(
+            posed,
+            resamples,
+            n_replicates,
+            random_state,
+            engine_used,
+            rule,
+            stab_note,
+            layout,
+            started,
+        ),
         predictions=predictions,
         coefficient_tables=None if full is None else full.coefficients,
         inclusion=inclusion,
