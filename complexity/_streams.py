@@ -164,7 +164,7 @@ def _bounded(
     rows = np.empty((m.shape[0], size), dtype=np.intp)
     clean = keep[:, :size].all(axis=1)  # nearly always: no rejection among the first values
     rows[clean] = (m[clean, :size] >> np.uint64(32)).astype(np.intp)
-    ok = clean.copy()
+    ok: NDArray[np.bool_] = np.array(clean, dtype=bool)
     for r in np.flatnonzero(~clean):
         accepted = m[r][keep[r]]
         if accepted.size >= size:

@@ -198,8 +198,8 @@ def fingerprint(problem: Problem, resamples: Sequence[Resample], engine: str) ->
     ({'entropy': '1', 'spawn_key': []}, 4)
     """
     root = problem.root
-    entropy = root.entropy
-    entropy = [str(e) for e in np.ravel(entropy)] if np.ndim(entropy) else str(entropy)
+    raw: Any = root.entropy
+    entropy: list[str] | str = [str(e) for e in np.ravel(raw)] if np.ndim(raw) else str(raw)
     data = {
         "X": _hash_array(problem.X),
         "y": _hash_array(problem.y),
@@ -359,7 +359,7 @@ class _Store:
 
     def save(self, outcome: Outcome) -> None:
         arrays = _outcome_arrays(outcome)
-        _atomic_write(_file(self.path, outcome.index), lambda h: np.savez(h, **arrays))
+        _atomic_write(_file(self.path, outcome.index), lambda h: np.savez(h, **arrays))  # type: ignore[arg-type]
 
     def load(self, r: Resample, n_capacities: int) -> Outcome:
         file = _file(self.path, r.index)

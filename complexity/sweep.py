@@ -84,6 +84,7 @@ def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | Non
             df=None,
             detail=f"known noise of the simulation (noise_sd = {plan.noise_sd:.6g})",
         )
+    assert X is not None and y is not None  # data plans always have data
     return estimate_noise(X, y, noise)
 
 
@@ -377,7 +378,7 @@ def _failures(
     for c in range(len(ladder.capacities)):
         count = int(acc.failures.count[c]) + (1 if full is not None and c in full.failures else 0)
         if count:
-            first = acc.failures.first.get(c) or (full.failures.get(c) if full else "")
+            first = acc.failures.first.get(c) or (full.failures.get(c, "") if full else "")
             failed[ladder.capacities[c]] = (count, first)
     failures = _failures_frame(
         [(cap, cnt, msg) for cap, (cnt, msg) in failed.items()], ladder.capacity_name
