@@ -44,7 +44,6 @@ from . import criteria
 from ._validation import _short_repr, as_seed_sequence, check_int, check_option, check_X_y
 from .basis import PolynomialBasis, n_total_degree_terms
 from .exceptions import ExtrapolationWarning
-from .rules import choose_min, choose_one_se
 
 if TYPE_CHECKING:
     from .result import SweepResult
@@ -364,28 +363,72 @@ def _choices(
     n: int,
     rule: str,
 ) -> NDArray[np.intp]:
-    """Capacity position chosen by ``rule`` in every replicate (-1 where none could be)."""
-    out = np.full(curve.shape[0], -1, dtype=np.intp)
+    """Capacity position chosen by ``rule`` in every replicate (-1 where none could be).
+
+    Vectorised over replicates; the first (simplest) capacity wins ties, as in
+    :mod:`complexity.rules`.
+    """
+    B, C = curve.shape
     params = np.array(n_cols, dtype=np.float64)
-    funcs = {"aic": criteria.aic, "aicc": criteria.aicc, "bic": criteria.bic, "gcv": criteria.gcv}
-    for b in range(curve.shape[0]):
-        usable = np.flatnonzero(ok[b] & np.isfinite(curve[b]) & (params < n))
-        if usable.size == 0:
-            continue
-        values = np.full(curve.shape[1], np.inf)
-        if rule in ("min", "loocv"):
-            out[b] = choose_min(curve[b])
-            continue
-        if rule == "one-se":
-            out[b] = choose_one_se(curve[b], se[b])
-            continue
-        if rule == "cp":
-            values[usable] = criteria.mallows_cp(curve[b, usable], params[usable], n)
-        else:
-            values[usable] = funcs[rule](curve[b, usable], params[usable], n)
-        if np.isfinite(values).any() or np.isneginf(values).any():
-            out[b] = int(np.argmin(values))
-    return out
+    usable = ok & np.isfinite(curve) & (params[None, :] < n)
+    if rule in ("min", "one-se", "loocv"):
+        values = np.where(usable, curve, np.inf)
+    elif rule == "cp":
+        # sigma² from the largest usable model of each replicate (criteria.mallows_cp's default)
+        last = C - 1 - np.argmax(usable[:, ::-1], axis=1)
+        rss_top = curve[np.arange(B), last]
+        room = n - params[last]
+        s2 = np.where(room > 0, rss_top / np.where(room > 0, room, 1.0), np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            values = curve / s2[:, None] - n + 2.0 * params[None, :]
+        values = np.where(usable & (s2[:, None] > 0), values, np.inf)
+    else:
+        func = {
+            "aic": criteria.aic,
+            "aicc": criteria.aicc,
+            "bic": criteria.bic,
+            "gcv": criteria.gcv,
+        }
+        flat = np.where(usable, curve, 1.0).reshape(-1)
+        values = func[rule](flat, np.tile(params, B), n).reshape(B, C)
+        values = np.where(usable, values, np.inf)
+    any_ok = usable.any(axis=1)
+    best = np.argmin(values, axis=1)
+    if rule == "one-se":
+        margin = se[np.arange(B), best]
+        margin = np.where(np.isfinite(margin), margin, 0.0)
+        threshold = values[np.arange(B), best] + margin
+        best = np.argmax(values <= threshold[:, None], axis=1)
+    return np.where(any_ok, best, -1).astype(np.intp)
+
+
+@dataclass(frozen=True)
+class _HeldOut:
+    """Per point and capacity, over the replicates that did not train on the point.
+
+    ``count`` (n, C), ``mean`` and ``var`` of those predictions, ``error`` their mean squared
+    error against y (NaN where fewer than two replicates scored the point).
+    """
+
+    count: NDArray[np.float64]
+    mean: NDArray[np.float64]
+    var: NDArray[np.float64]
+    error: NDArray[np.float64]
+
+
+def _held_out(batch: _Batch, weights: NDArray[np.float64], y: NDArray[np.float64]) -> _HeldOut:
+    """Out-of-bag (or held-out) moments of the predictions at the data points."""
+    scored = (weights == 0)[:, :, None] & batch.ok[:, None, :]  # (B, n, C)
+    pred = np.where(scored, batch.fitted, 0.0)
+    count = scored.sum(axis=0).astype(np.float64)
+    enough = count >= 2
+    safe = np.where(enough, count, 1.0)
+    mean = pred.sum(axis=0) / safe
+    # spread about the point's own mean (divisor count), so error = var + (mean - y)² exactly
+    var = np.where(scored, (batch.fitted - mean[None]) ** 2, 0.0).sum(axis=0) / safe
+    error = np.where(scored, (batch.fitted - y[None, :, None]) ** 2, 0.0).sum(axis=0) / safe
+    nan = np.where(enough, 1.0, np.nan)
+    return _HeldOut(count, mean * nan, var * nan, error * nan)
 
 
 def _bootstrap_weights(n: int, n_boot: int, random_state: Any) -> NDArray[np.float64]:
