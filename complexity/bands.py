@@ -260,8 +260,10 @@ def _least_squares(
             f"degree {degree} is numerically rank deficient on these x values "
             f"(|R_kk| / |R_00| = {diag.min() / diag.max():.2e}); choose a lower degree."
         )
-    coef = linalg.solve_triangular(R, Q.T @ y)
-    r_inv = linalg.solve_triangular(R, np.eye(k))
+    r_inv, info = linalg.lapack.dtrtri(R, lower=0)  # R^-1 of the upper triangle
+    if info != 0:  # pragma: no cover - excluded by the rank check above
+        raise ValueError(f"degree {degree}: the triangular factor is singular (info {info}).")
+    coef = r_inv @ (Q.T @ y)
     rss = float(np.sum((y - Zk @ coef) ** 2))
     return _LeastSquares(degree, k, coef, r_inv, rss, Zk.shape[0])
 
@@ -626,12 +628,9 @@ def _frame(
     upper: NDArray[np.float64],
     inside: NDArray[np.bool_],
 ) -> pd.DataFrame:
-    frame = pd.DataFrame(pts, columns=list(setup.names))
-    frame["estimate"] = estimate
-    frame["std_error"] = se
-    frame["lower"] = lower
-    frame["upper"] = upper
-    frame["in_range"] = inside
+    columns = {name: pts[:, j] for j, name in enumerate(setup.names)}
+    columns.update(estimate=estimate, std_error=se, lower=lower, upper=upper, in_range=inside)
+    frame = pd.DataFrame(columns)
     return frame
 
 
