@@ -602,7 +602,8 @@ def predict(
                     f"degree {fit.degree} leaves no residual degrees of freedom (n = {fit.n}, "
                     f"p = {fit.k}); use noise='sweep' or a lower degree."
                 )
-            s2, df = fit.s2, float(fit.df)
+            s2 = fit.s2
+            df: float | None = float(fit.df)
         else:
             s2, df = setup.noise, setup.noise_df
         q = (
@@ -628,10 +629,9 @@ def _frame(
     upper: NDArray[np.float64],
     inside: NDArray[np.bool_],
 ) -> pd.DataFrame:
-    columns = {name: pts[:, j] for j, name in enumerate(setup.names)}
+    columns: dict[str, NDArray[Any]] = {name: pts[:, j] for j, name in enumerate(setup.names)}
     columns.update(estimate=estimate, std_error=se, lower=lower, upper=upper, in_range=inside)
-    frame = pd.DataFrame(columns)
-    return frame
+    return pd.DataFrame(columns)
 
 
 # --------------------------------------------------------------------------------------------
