@@ -320,3 +320,12 @@ def test_inverse_prediction_of_a_mean_of_readings_is_narrower(sensor):
     np.testing.assert_allclose(one["estimate"], four["estimate"])
     assert ((four["upper"] - four["lower"]) < (one["upper"] - one["lower"])).all()
     assert "reference standards" in one.attrs["caution"]
+
+
+def test_a_saved_and_reloaded_result_gives_the_same_bands(sensor, tmp_path):
+    result, X, y = sensor
+    loaded = cx.load_result(result.save(tmp_path / "sweep.json"))
+    for kind in ("confidence", "prediction"):
+        a = bands.predict(result, X, y, [0.0, 25.0], capacity=3, interval=kind)
+        b = bands.predict(loaded, X, y, [0.0, 25.0], capacity=3, interval=kind)
+        pd.testing.assert_frame_equal(a, b)
