@@ -36,11 +36,12 @@ def kernel_specs(tmp_path_factory) -> KernelSpecManager:
     return KernelSpecManager(kernel_dirs=[str(folder)])
 
 
-def test_there_are_three_notebooks():
+def test_there_are_four_notebooks():
     assert [p.name for p in NOTEBOOKS] == [
         "01_calibration_degree.ipynb",
         "02_diabetes_feature_count.ipynb",
         "03_selector_pipeline.ipynb",
+        "04_calibration_bands.ipynb",
     ]
 
 
