@@ -34,9 +34,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-from ._validation import _short_repr, as_seed_sequence, check_int
-from .bands import (
-    CAUTION,
+from ._refit import (
     _fit_at,
     _held_out,
     _least_squares,
@@ -44,6 +42,8 @@ from .bands import (
     _Setup,
     _setup,
 )
+from ._validation import _short_repr, as_seed_sequence, check_int
+from .bands import CAUTION
 from .exceptions import ExtrapolationWarning
 
 if TYPE_CHECKING:

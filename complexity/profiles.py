@@ -21,8 +21,9 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
+from ._refit import _bootstrap_weights, _fit_at, _held_out, _nested_fits, _setup
 from ._validation import _short_repr, check_int
-from .bands import CAUTION, _bootstrap_weights, _fit_at, _held_out, _nested_fits, _setup
+from .bands import CAUTION
 
 if TYPE_CHECKING:
     from .result import SweepResult
