@@ -14,6 +14,7 @@ The classes keep their own ``__repr__``.
 
 from __future__ import annotations
 
+import copy
 import inspect
 from typing import Any, TypeVar
 
@@ -161,8 +162,16 @@ class ParamsMixin:
         return self
 
     def __sklearn_clone__(self: _Self) -> _Self:
-        """A new object with the same parameters (inner estimators cloned, unfitted)."""
+        """A new object with the same parameters (inner estimators cloned, unfitted).
+
+        A subclass that does not store its ``__init__`` parameters under their names is
+        deep-copied instead (what :func:`sklearn.base.clone` does for objects without
+        parameters).
+        """
         from sklearn.base import clone
 
-        params = {k: clone(v, safe=False) for k, v in self.get_params(deep=False).items()}
-        return type(self)(**params)
+        try:
+            own = self.get_params(deep=False)
+        except AttributeError:
+            return copy.deepcopy(self)
+        return type(self)(**{k: clone(v, safe=False) for k, v in own.items()})
