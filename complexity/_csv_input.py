@@ -251,11 +251,17 @@ def _default_predictors(frame: Any, target: str, keep_index: bool, notes: list[s
     if keep_index:
         notes.append(f"kept the first column {name!r} as a predictor ({reason})")
         return predictors
+    kept = [c for c in predictors if c != name]
+    if not kept:
+        raise InputError(
+            f"the only column besides the target, {name!r}, looks like a saved row index ({reason}); "
+            "pass --keep-index-column to sweep it anyway"
+        )
     notes.append(
         f"left out the first column {name!r}: {reason}, which looks like a saved row index, not "
         "a measurement (--keep-index-column keeps it)"
     )
-    return [c for c in predictors if c != name]
+    return kept
 
 
 def select_data(

@@ -364,7 +364,8 @@ def _parser() -> argparse.ArgumentParser:
         type=_column_list,
         default=None,
         metavar="COL[,COL...]",
-        help="the predictor columns, in the order they should enter (default: every other column)",
+        help="the predictor columns, in the order they should enter (default: every other "
+        "column, less a saved row index; see --keep-index-column)",
     )
     data.add_argument(
         "--separator",
@@ -377,8 +378,9 @@ def _parser() -> argparse.ArgumentParser:
         "--decimal",
         choices=(".", ","),
         default=".",
-        help="the decimal mark of the numbers: ',' reads 1,5 as 1.5 (then separate the "
-        "fields with another character, e.g. --separator ';'; default '.')",
+        metavar="MARK",
+        help="the decimal mark of the numbers, '.' or ',': ',' reads 1,5 as 1.5 (then the "
+        "fields need another separator, e.g. --separator ';'; default '.')",
     )
     data.add_argument(
         "--keep-index-column",

@@ -193,6 +193,8 @@ BAD_CASES = {
     "repeats without folds": (GOOD, ["--repeats", "3"], "--repeats goes with --folds", 1),
     "target as predictor": (GOOD, ["--predictors", "x,y"], "cannot also be a predictor", 1),
     "bad output suffix": (GOOD, ["--report", "out.txt"], "ending in .html", 1),
+    "only an index": (",y\n" + "".join(f"{i},{i % 4}\n" for i in range(8)), [], "row index", 1),
+    "bad decimal mark": (GOOD, ["--decimal", ";"], "invalid choice: ';'", 2),
 }
 
 
