@@ -15,14 +15,15 @@ import sys
 import warnings
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any, NoReturn
+from typing import TYPE_CHECKING, Any, NoReturn
 
+from ._csv_input import MIN_ROWS, one_line, read_table, select_data, separator_char
 from .exceptions import InputError, SweepFailedError
 
-__all__ = ["main"]
+if TYPE_CHECKING:
+    from .ladders import Ladder
 
-#: A sweep needs rows to train on and rows to leave out; fewer than this is refused up front.
-MIN_ROWS = 5
+__all__ = ["MIN_ROWS", "main"]
 
 _VIEWS = ("errors", "parts", "fits", "stability", "conditioning")
 _RULES = ("one-se", "min", "loocv", "gcv", "aic", "aicc", "bic", "cp")
@@ -97,113 +98,6 @@ def _column_list(text: str) -> list[str]:
     if not all(names):
         raise argparse.ArgumentTypeError(f"{text!r} has an empty column name")
     return names
-
-
-# --------------------------------------------------------------------------------------------
-# reading the CSV file
-# --------------------------------------------------------------------------------------------
-
-
-def _one_line(text: str) -> str:
-    return " ".join(str(text).split())
-
-
-def _read_table(path: Path, separator: str) -> Any:
-    import pandas as pd
-
-    if not path.exists():
-        raise InputError(f"{path}: no such file")
-    if path.is_dir():
-        raise InputError(f"{path} is a folder, not a CSV file")
-    try:
-        frame = pd.read_csv(path, sep=separator, skipinitialspace=True)
-    except pd.errors.EmptyDataError:
-        raise InputError(f"{path} is empty; expected a CSV file with a header row") from None
-    except pd.errors.ParserError as exc:
-        first = _one_line(str(exc).splitlines()[-1] if str(exc) else exc)
-        raise InputError(f"{path} is not a well-formed CSV file ({first})") from None
-    except UnicodeDecodeError:
-        raise InputError(f"{path} is not a text CSV file (it is not valid UTF-8)") from None
-    except OSError as exc:
-        raise InputError(f"cannot read {path}: {exc.strerror or exc}") from None
-    frame.columns = [str(c).strip() for c in frame.columns]
-    if len(frame.columns) < 2:
-        raise InputError(
-            f"{path} has {len(frame.columns)} column(s); a sweep needs a target column and at least "
-            f"one predictor column (is the separator {separator!r} right? see --separator)"
-        )
-    return frame
-
-
-def _numeric_column(frame: Any, name: str, path: Path) -> Any:
-    import pandas as pd
-
-    column = frame[name]
-    if pd.api.types.is_bool_dtype(column):
-        raise InputError(f"column {name!r} in {path} holds true/false values; it must be numeric")
-    if pd.api.types.is_numeric_dtype(column):
-        return column.astype("float64")
-    converted = pd.to_numeric(column, errors="coerce")
-    bad = converted.isna() & column.notna()
-    if bad.any():
-        row = int(bad.to_numpy().nonzero()[0][0])
-        raise InputError(
-            f"column {name!r} in {path} is not numeric: data row {row + 1} holds "
-            f"{column.iloc[row]!r}"
-        )
-    return converted.astype("float64")
-
-
-def _select_data(
-    frame: Any, path: Path, target: str, predictors: list[str] | None, skip_incomplete: bool
-) -> tuple[Any, Any, int]:
-    """The predictors (DataFrame) and target (Series) to sweep, and how many rows were dropped."""
-    columns = list(frame.columns)
-    shown = ", ".join(repr(c) for c in columns[:12]) + (" ..." if len(columns) > 12 else "")
-    if target not in columns:
-        raise InputError(f"target column {target!r} is not in {path}; its columns are {shown}")
-    if predictors is not None:
-        missing = [p for p in predictors if p not in columns]
-        if missing:
-            raise InputError(
-                f"predictor column(s) {', '.join(repr(m) for m in missing)} not in {path}; "
-                f"its columns are {shown}"
-            )
-        if target in predictors:
-            raise InputError(f"column {target!r} is the target; it cannot also be a predictor")
-        if len(set(predictors)) != len(predictors):
-            raise InputError("a predictor column is named twice in --predictors")
-    defaulted = predictors is None
-    if defaulted:
-        predictors = [c for c in columns if c != target]
-    data = {}
-    for name in [*predictors, target]:
-        try:
-            data[name] = _numeric_column(frame, name, path)
-        except InputError as exc:
-            if defaulted and name != target:
-                raise InputError(f"{exc}; choose the predictor columns with --predictors") from None
-            raise
-    import pandas as pd
-
-    table = pd.DataFrame(data)
-    incomplete = table.isna().any(axis=1)
-    dropped = int(incomplete.sum())
-    if dropped and not skip_incomplete:
-        first = int(incomplete.to_numpy().nonzero()[0][0])
-        empty = [c for c in table.columns if pd.isna(table.iloc[first][c])]
-        raise InputError(
-            f"{path} has {dropped} row(s) with empty cells in the chosen columns (first: data row "
-            f"{first + 1}, column {empty[0]!r}); fill them, or pass --skip-incomplete to leave "
-            "those rows out"
-        )
-    table = table.loc[~incomplete]
-    if len(table) < MIN_ROWS:
-        raise InputError(
-            f"{path} has {len(table)} complete row(s); a sweep needs at least {MIN_ROWS} "
-            "(some to train on, some to leave out)"
-        )
-    return table[predictors], table[target], dropped
 
 
 # --------------------------------------------------------------------------------------------
@@ -321,15 +215,24 @@ def _sweep_csv(args: argparse.Namespace, command: str) -> int:
     if args.repeats is not None and args.folds is None:
         raise InputError("--repeats goes with --folds (repeated K-fold); drop it or add --folds K")
 
-    frame = _read_table(args.csv, args.separator)
-    X, y, dropped = _select_data(
-        frame, args.csv, args.target, args.predictors, args.skip_incomplete
+    frame = read_table(args.csv, args.separator, args.decimal)
+    chosen = select_data(
+        frame,
+        args.csv,
+        args.target,
+        args.predictors,
+        args.skip_incomplete,
+        decimal=args.decimal,
+        keep_index=args.keep_index_column,
     )
-    if dropped and not args.quiet:
-        print(f"complexity: note: left out {dropped} row(s) with empty cells", file=sys.stderr)
+    X, y = chosen.X, chosen.y
+    if not args.quiet:
+        for note in chosen.notes:
+            print(f"complexity: note: {note}", file=sys.stderr)
     if args.png is not None and args.png_view == "fits" and X.shape[1] != 1:
         raise InputError(f"--png-view fits draws one predictor; {X.shape[1]} are chosen")
 
+    ladder: Ladder
     if args.degrees is not None:
         ladder = cx.PolynomialLadder(degrees=args.degrees)
     elif args.feature_counts is not None:
@@ -461,13 +364,29 @@ def _parser() -> argparse.ArgumentParser:
         type=_column_list,
         default=None,
         metavar="COL[,COL...]",
-        help="the predictor columns, in the order they should enter (default: every other column)",
+        help="the predictor columns, in the order they should enter (default: every other "
+        "column, less a saved row index; see --keep-index-column)",
     )
     data.add_argument(
         "--separator",
+        type=separator_char,
         default=",",
         metavar="CHAR",
-        help="the field separator of the file (default ',')",
+        help="the field separator of the file, e.g. ';' or '\\t' for a tab (default ',')",
+    )
+    data.add_argument(
+        "--decimal",
+        choices=(".", ","),
+        default=".",
+        metavar="MARK",
+        help="the decimal mark of the numbers, '.' or ',': ',' reads 1,5 as 1.5 (then the "
+        "fields need another separator, e.g. --separator ';'; default '.')",
+    )
+    data.add_argument(
+        "--keep-index-column",
+        action="store_true",
+        help="with the default predictors, keep a first column without a header that holds "
+        "one label per row (a saved row index, left out by default with a note)",
     )
     data.add_argument(
         "--skip-incomplete",
@@ -617,12 +536,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(args.handler(args, command))
     except InputError as exc:
-        message = _one_line(str(exc))
+        message = one_line(str(exc))
     except ImportError as exc:
-        message = _one_line(str(exc))
+        message = one_line(str(exc))
     except (ValueError, TypeError, OSError, SweepFailedError) as exc:
         # what the library raises for bad data (each message names the problem and the fix)
-        message = _one_line(str(exc) or type(exc).__name__)
+        message = one_line(str(exc) or type(exc).__name__)
     except KeyboardInterrupt:
         print("\ncomplexity: interrupted", file=sys.stderr)
         return 130

@@ -19,13 +19,14 @@ from sklearn.dummy import DummyRegressor
 from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
+from ._params import ParamsMixin
 from ._validation import _short_repr, check_option, repr_from_description, row_groups
 from .basis import LegendreFeatures, n_total_degree_terms
 
 __all__ = ["FeatureLadder", "Ladder", "ParamLadder", "PolynomialLadder"]
 
 
-class Ladder:
+class Ladder(ParamsMixin):
     """Base class of all ladders (not used directly).
 
     Subclasses set :attr:`capacities` (simplest first) and :attr:`capacity_name`, and implement

@@ -4,6 +4,10 @@ A plan turns the data (or, for :class:`Simulation`, a known generative model) in
 :class:`Resample` objects: which rows train the model, and at which evaluation points it is scored.
 Every random draw comes from a seed derived from one root :class:`numpy.random.SeedSequence` and the
 resample's index, so the resamples do not depend on how the work is later spread over processes.
+
+This module is the front door for plans: :class:`Resample`, the :class:`Plan` base class and the
+seed streams are defined in :mod:`complexity._resample`, the scikit-learn splitter adapter in
+:mod:`complexity._splitters`; both are imported from here.
 """
 
 from __future__ import annotations
@@ -16,19 +20,26 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from sklearn import model_selection
 from sklearn.model_selection import KFold
 
-from ._streams import bootstrap_draws
-from ._validation import (
-    _short_repr,
-    as_seed_sequence,
-    check_float,
-    check_int,
-    repr_from_description,
+from ._resample import (
+    STREAM_ESTIMATOR,
+    STREAM_FULL_FIT,
+    STREAM_PILOT,
+    STREAM_RESAMPLE,
+    Plan,
+    Resample,
+    child_seed,
 )
+from ._splitters import _SplitterPlan, splitter_exchangeable
+from ._streams import bootstrap_draws
+from ._validation import _short_repr, check_float, check_int
 
 __all__ = [
+    "STREAM_ESTIMATOR",
+    "STREAM_FULL_FIT",
+    "STREAM_PILOT",
+    "STREAM_RESAMPLE",
     "Bootstrap",
     "CrossValidation",
     "Plan",
@@ -36,140 +47,16 @@ __all__ = [
     "Simulation",
     "SplitLayout",
     "as_plan",
+    "child_seed",
     "default_plan",
     "split_layout",
 ]
-
-#: spawn-key prefixes that keep the independent random streams of a sweep apart
-STREAM_RESAMPLE, STREAM_ESTIMATOR, STREAM_FULL_FIT, STREAM_PILOT = 0, 1, 2, 3
-
-
-def child_seed(root: np.random.SeedSequence, *key: int) -> np.random.SeedSequence:
-    """The child of ``root`` at ``key``: a pure function of the root and the key.
-
-    This is what ``root.spawn`` produces, but addressed by key, so it never depends on how many
-    children were spawned before.
-    """
-    return np.random.SeedSequence(root.entropy, spawn_key=(*root.spawn_key, *key))
-
-
-class Resample:
-    """One training set and the evaluation points scored against it.
-
-    Attributes
-    ----------
-    index : int
-        Position of this resample in the plan.
-    replicate : int
-        The replicate it belongs to: a bootstrap sample or a simulated training set is its own
-        replicate; the folds of one repetition of K-fold share one. Selection stability is counted
-        over replicates.
-    train : ndarray of int or None
-        Row positions of the training set in X (with repeats for the bootstrap, in sorted order);
-        None for a simulation, whose training set is drawn from ``seed``.
-    test : ndarray of int
-        Positions of the evaluation points scored against this training set.
-    counts : ndarray of int or None
-        For a bootstrap resample: how many times each row of X was drawn (``train`` and ``test``
-        are made from it on first use).
-    root : numpy.random.SeedSequence
-        The sweep's root seed.
-    key : tuple of int
-        Where the resample's own seed sits below the root (see :attr:`seed`).
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> r = Resample(0, 0, None, None, np.random.SeedSequence(0), (0,), counts=np.array([2, 0, 1]))
-    >>> r.train.tolist(), r.test.tolist()
-    ([0, 0, 2], [1])
-    """
-
-    __slots__ = ("_test", "_train", "counts", "index", "key", "replicate", "root")
-
-    def __init__(
-        self,
-        index: int,
-        replicate: int,
-        train: NDArray[np.intp] | None,
-        test: NDArray[np.intp] | None,
-        root: np.random.SeedSequence,
-        key: tuple[int, ...],
-        *,
-        counts: NDArray[np.intp] | None = None,
-    ) -> None:
-        if test is None and counts is None:
-            raise ValueError("a resample needs its test rows or its bootstrap counts")
-        self.index, self.replicate = index, replicate
-        self._train, self._test = train, test
-        self.root, self.key, self.counts = root, key, counts
-
-    @property
-    def train(self) -> NDArray[np.intp] | None:
-        """Training rows (for a bootstrap, the drawn rows in sorted order: a counting sort)."""
-        if self._train is None and self.counts is not None:
-            self._train = np.repeat(np.arange(self.counts.size), self.counts)
-        return self._train
-
-    @property
-    def test(self) -> NDArray[np.intp]:
-        """Evaluation points (for a bootstrap, the rows never drawn: out of bag)."""
-        if self._test is None:
-            assert self.counts is not None
-            self._test = np.flatnonzero(self.counts == 0)
-        return self._test
-
-    @property
-    def seed(self) -> np.random.SeedSequence:
-        """The resample's own seed: the child of ``root`` at ``(STREAM_RESAMPLE, *key)``."""
-        return child_seed(self.root, STREAM_RESAMPLE, *self.key)
-
-    def __repr__(self) -> str:
-        return (
-            f"Resample(index={self.index}, replicate={self.replicate}, "
-            f"n_train={None if self.train is None else self.train.size}, n_test={self.test.size})"
-        )
-
-
-class Plan:
-    """Base class of the plans. Subclasses implement :meth:`resamples` and :meth:`describe`."""
-
-    kind: str = "plan"
-
-    def resamples(
-        self,
-        n: int,
-        root: np.random.SeedSequence,
-        X: NDArray[np.float64] | None = None,
-        y: NDArray[np.float64] | None = None,
-        groups: Any = None,
-    ) -> list[Resample]:
-        raise NotImplementedError
-
-    def split(
-        self, X: Any, y: Any = None, groups: Any = None, random_state: Any = None
-    ) -> Iterator[tuple[NDArray[np.intp], NDArray[np.intp]]]:
-        """Yield ``(train, test)`` row positions, as the sweep would draw them for ``random_state``.
-
-        Useful to hand exactly the sweep's training sets to another tool, such as
-        :func:`sklearn.model_selection.cross_val_score` (``cv=list(plan.split(X, random_state=0))``).
-        """
-        n = len(X)
-        for r in self.resamples(n, as_seed_sequence(random_state), X, y, groups):
-            if r.train is None:
-                raise TypeError("a Simulation draws fresh data; it has no split of X.")
-            yield r.train, r.test
-
-    def describe(self) -> dict[str, Any]:
-        raise NotImplementedError
-
-    def __repr__(self) -> str:
-        return repr_from_description(self)
 
 
 def _bootstrap_batch(n: int, root: np.random.SeedSequence, start: int, stop: int) -> list[Resample]:
     """Bootstrap resamples ``start .. stop - 1``: resample b draws its n rows from its own seed."""
     draws = bootstrap_draws(root, (STREAM_RESAMPLE,), range(start, stop), n)
+    counts: NDArray[np.intp] | list[NDArray[np.intp]]
     if n * len(draws) <= 1 << 20:  # all counts in one pass
         rows = np.concatenate(draws) + np.repeat(np.arange(len(draws)) * n, n)
         counts = np.bincount(rows, minlength=n * len(draws)).reshape(len(draws), n)
@@ -311,43 +198,6 @@ class CrossValidation(Plan):
             "n_repeats": self.n_repeats,
             "shuffle": self.shuffle,
         }
-
-
-class _SplitterPlan(Plan):
-    """Adapter for any object with scikit-learn's ``split(X, y, groups)``."""
-
-    kind = "splitter"
-
-    def __init__(self, splitter: Any) -> None:
-        self.splitter = splitter
-
-    def resamples(self, n, root, X=None, y=None, groups=None):
-        if X is None:
-            raise ValueError("a scikit-learn splitter needs the data X.")
-        out: list[Resample] = []
-        replicate, seen = 0, np.zeros(n, dtype=bool)
-        for index, (train, test) in enumerate(self.splitter.split(X, y, groups)):
-            train = np.asarray(train, dtype=np.intp)
-            test = np.asarray(test, dtype=np.intp)
-            if train.size == 0 or test.size == 0:
-                which = "training" if train.size == 0 else "test"
-                raise ValueError(
-                    f"plan {self.splitter!r} produced an empty {which} set in split {index}; "
-                    "every split needs at least one training and one test row."
-                )
-            if seen[test].any():  # a row scored again: a new repetition has started
-                replicate, seen = replicate + 1, np.zeros(n, dtype=bool)
-            seen[test] = True
-            out.append(Resample(index, replicate, train, test, root, (index,)))
-        if not out:
-            raise ValueError(f"plan {self.splitter!r} produced no splits.")
-        return out
-
-    def describe(self) -> dict[str, Any]:
-        return {"kind": self.kind, "splitter": repr(self.splitter)}
-
-    def __repr__(self) -> str:
-        return repr(self.splitter)
 
 
 class Simulation(Plan):
@@ -544,26 +394,6 @@ class SplitLayout:
     reason: str = ""
 
 
-#: scikit-learn splitters whose training sets are uniformly random subsets of the other rows
-_EXCHANGEABLE_SPLITTERS = ("KFold", "RepeatedKFold", "ShuffleSplit")
-
-
-def _splitter_exchangeable(splitter: Any) -> tuple[bool, str]:
-    name = type(splitter).__name__
-    known = tuple(getattr(model_selection, k) for k in _EXCHANGEABLE_SPLITTERS)
-    if type(splitter) not in known:
-        return False, (
-            f"{name}'s training sets are not known to be random subsets of the other rows (groups, "
-            "time order or strata shape them), so the spread of its predictions is not a sampling "
-            "variance"
-        )
-    if isinstance(splitter, KFold) and not splitter.shuffle:
-        return False, (
-            "KFold(shuffle=False) cuts contiguous folds, which are not random subsets of the rows"
-        )
-    return True, ""
-
-
 def split_layout(plan: Plan, resamples: Sequence[Resample], n_obs: int) -> SplitLayout:
     """Describe a plan's training sets for the decomposition (see :class:`SplitLayout`).
 
@@ -592,7 +422,8 @@ def split_layout(plan: Plan, resamples: Sequence[Resample], n_obs: int) -> Split
         return SplitLayout(plan.kind, n_obs, float(plan.n_train), float(n_obs), False, False)
     if isinstance(plan, Bootstrap):
         return SplitLayout(plan.kind, n_obs, float(n_obs), n_obs * 0.368, True, False)
-    train = np.array([len(r.train) for r in resamples], dtype=np.float64)
+    # only a Simulation has resamples without training rows, and it returned above
+    train = np.array([len(r.train) for r in resamples if r.train is not None], dtype=np.float64)
     test = np.array([len(r.test) for r in resamples], dtype=np.float64)
     replicate_of = np.array([r.replicate for r in resamples], dtype=np.intp)
     # no row is scored twice within a replicate (K-fold by construction; the splitter adapter
@@ -610,7 +441,7 @@ def split_layout(plan: Plan, resamples: Sequence[Resample], n_obs: int) -> Split
             )
         )
     else:
-        exchangeable, reason = _splitter_exchangeable(getattr(plan, "splitter", plan))
+        exchangeable, reason = splitter_exchangeable(getattr(plan, "splitter", plan))
     return SplitLayout(
         plan.kind,
         n_obs,

@@ -4,7 +4,8 @@ The selector is a scikit-learn regressor whose ``fit`` runs the whole procedure 
 over resampled training sets, pick a capacity by a rule, refit the model at that capacity on all
 the data), so it can be the last step of a :class:`~sklearn.pipeline.Pipeline`, be assessed by an
 outer :func:`~sklearn.model_selection.cross_val_score` and be tuned by
-:class:`~sklearn.model_selection.GridSearchCV`.
+:class:`~sklearn.model_selection.GridSearchCV`, also over the ladder's and the plan's own settings
+(``ladder__degrees``, ``plan__n_splits``: ladders and plans are parameter objects).
 
 The sweep's own test error at the chosen capacity is the minimum (or near minimum) of many noisy
 estimates, so it is optimistic. The honest figure for the procedure is an outer loop around the
@@ -130,6 +131,14 @@ class ComplexitySelector(RegressorMixin, BaseEstimator):
     ...                         scoring="neg_mean_squared_error")
     >>> len(outer)
     5
+
+    The ladder's and the plan's own settings are nested parameters, so
+    :class:`~sklearn.model_selection.GridSearchCV` can tune them:
+
+    >>> sel.get_params()["ladder__degrees"], sel.get_params()["plan__n_splits"]
+    ((0, 1, 2, 3, 4, 5), 5)
+    >>> sel.set_params(ladder__degrees=range(0, 3)).ladder
+    PolynomialLadder(degrees=[0, 1, 2], domain=None)
     """
 
     def __init__(

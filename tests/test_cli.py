@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import os
+import shlex
 import subprocess
 import sys
 import warnings
 from pathlib import Path
+from typing import Any
 
 import matplotlib
 
@@ -191,6 +193,8 @@ BAD_CASES = {
     "repeats without folds": (GOOD, ["--repeats", "3"], "--repeats goes with --folds", 1),
     "target as predictor": (GOOD, ["--predictors", "x,y"], "cannot also be a predictor", 1),
     "bad output suffix": (GOOD, ["--report", "out.txt"], "ending in .html", 1),
+    "only an index": (",y\n" + "".join(f"{i},{i % 4}\n" for i in range(8)), [], "row index", 1),
+    "bad decimal mark": (GOOD, ["--decimal", ";"], "invalid choice: ';'", 2),
 }
 
 
@@ -265,3 +269,173 @@ def test_module_entry_point_has_no_traceback(tmp_path):
 def test_no_command_prints_help(capsys):
     assert main([]) == 2
     assert "COMMAND" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------------------------
+# files as other tools write them: a saved index, decimal commas, tabs (issue 12 item 5)
+# --------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def diabetes_frame() -> pd.DataFrame:
+    from sklearn.datasets import load_diabetes  # a data set scikit-learn ships
+
+    return load_diabetes(as_frame=True).frame.iloc[:150, [0, 2, 3, 8, 10]]
+
+
+def _sweep_saved(capsys: Any, path: Path, tmp_path: Path, *extra: str) -> tuple[Any, ...]:
+    """Run ``complexity sweep`` on ``path`` (5-fold, seed 0): code, stdout, stderr, result."""
+    capsys.readouterr()  # only this run's output
+    saved = tmp_path / f"{path.stem}-result.json"
+    args = ["sweep", str(path), "--target", "target", "--folds", "5", "--no-progress"]
+    code = main([*args, *extra, "--save-result", str(saved)])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err, (cx.load_result(saved) if code == 0 else None)
+
+
+@pytest.fixture(scope="module")
+def plain_result(diabetes_frame, tmp_path_factory) -> cx.SweepResult:
+    """The reference: the same rows written by pandas with no index, ',' and '.'."""
+    folder = tmp_path_factory.mktemp("plain")
+    path = folder / "plain.csv"
+    diabetes_frame.to_csv(path, index=False)
+    saved = folder / "plain.json"
+    args = ["sweep", str(path), "--target", "target", "--folds", "5", "--no-progress", "--quiet"]
+    assert main([*args, "--save-result", str(saved)]) == 0
+    return cx.load_result(saved)
+
+
+def _same_sweep(result: cx.SweepResult, reference: cx.SweepResult) -> None:
+    assert result.metadata["feature_names"] == reference.metadata["feature_names"]
+    assert result.recommended == reference.recommended
+    # the numbers read from the file are the same doubles, so the curves agree to rounding
+    pd.testing.assert_frame_equal(result.curves, reference.curves, check_exact=False, rtol=1e-12)
+
+
+def test_index_saved_by_pandas_is_left_out_with_a_note(
+    diabetes_frame, plain_result, tmp_path, capsys
+):
+    path = tmp_path / "with-index.csv"
+    diabetes_frame.to_csv(path)  # pandas' default writes the index first, under an empty header
+    assert path.read_text(encoding="utf-8").startswith(",age,")
+    code, out, err, result = _sweep_saved(capsys, path, tmp_path)
+    assert code == 0, err
+    lines = err.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("complexity: note: left out the first column")
+    assert "'Unnamed: 0'" in lines[0] and "row numbers 0..149" in lines[0]
+    assert "--keep-index-column" in lines[0]
+    assert "Unnamed" not in out
+    assert "Unnamed: 0" not in result.metadata["feature_names"]
+    _same_sweep(result, plain_result)
+
+
+def test_keep_index_column_makes_it_a_predictor(diabetes_frame, tmp_path, capsys):
+    path = tmp_path / "with-index.csv"
+    diabetes_frame.to_csv(path)
+    code, _, err, result = _sweep_saved(capsys, path, tmp_path, "--keep-index-column")
+    assert code == 0, err
+    assert "kept the first column 'Unnamed: 0'" in err
+    assert result.metadata["feature_names"] == ["Unnamed: 0", "age", "bmi", "bp", "s5"]
+
+
+def test_index_of_a_filtered_frame_is_left_out(diabetes_frame, plain_result, tmp_path, capsys):
+    # a frame filtered before saving keeps its row labels (here 0, 2, 4, ...), not 0..n-1
+    spread = diabetes_frame.set_axis(np.arange(0, 2 * len(diabetes_frame), 2))
+    path = tmp_path / "filtered.csv"
+    spread.to_csv(path)
+    code, _, err, result = _sweep_saved(capsys, path, tmp_path)
+    assert code == 0, err
+    assert "'Unnamed: 0': it has no header and holds a different label on every row" in err
+    _same_sweep(result, plain_result)
+
+
+def test_a_named_first_column_is_a_predictor(diabetes_frame, tmp_path, capsys):
+    # a named column counting 1..n may be a real trend (run number, day): it is not left out
+    frame = diabetes_frame.copy()
+    frame.insert(0, "day", np.arange(1, len(frame) + 1))
+    path = tmp_path / "days.csv"
+    frame.to_csv(path, index=False)
+    code, _, err, result = _sweep_saved(capsys, path, tmp_path)
+    assert code == 0, err
+    assert err == ""
+    assert result.metadata["feature_names"][0] == "day"
+
+
+def test_index_named_in_predictors_is_used_as_asked(diabetes_frame, tmp_path, capsys):
+    path = tmp_path / "with-index.csv"
+    diabetes_frame.to_csv(path)
+    code, _, err, result = _sweep_saved(capsys, path, tmp_path, "--predictors", "bmi,Unnamed: 0")
+    assert code == 0, err
+    assert err == ""
+    assert result.metadata["feature_names"] == ["bmi", "Unnamed: 0"]
+
+
+def test_decimal_commas_are_named_then_read(diabetes_frame, plain_result, tmp_path, capsys):
+    path = tmp_path / "decimal-comma.csv"
+    diabetes_frame.to_csv(path, sep=";", decimal=",", index=False)
+    assert "0,0380759" in path.read_text(encoding="utf-8")
+    code, out, err, _ = _sweep_saved(capsys, path, tmp_path, "--separator", ";")
+    line = _one_error_line(err)
+    assert code == 1 and out == ""
+    assert "column 'age'" in line and "data row 1 holds '0,038075906433423026'" in line
+    assert "--decimal ','" in line and "as 0.038075906433423026" in line
+    code, _, err, result = _sweep_saved(
+        capsys, path, tmp_path, "--separator", ";", "--decimal", ","
+    )
+    assert code == 0, err
+    assert err == ""
+    _same_sweep(result, plain_result)
+
+
+def test_semicolon_file_read_with_commas_suggests_the_separator(diabetes_frame, tmp_path, capsys):
+    path = tmp_path / "decimal-comma.csv"
+    diabetes_frame.to_csv(path, sep=";", decimal=",", index=False)
+    code, _, err, _ = _sweep_saved(capsys, path, tmp_path)
+    line = _one_error_line(err)
+    assert code == 1 and "try --separator ';'" in line
+
+
+def test_decimal_point_with_decimal_comma_option_is_named(tmp_path, capsys):
+    path = _write(tmp_path / "d.csv", "x;y\n" + "".join(f"{i}.5;{i}\n" for i in range(8)))
+    assert main(["sweep", str(path), "--target", "y", "--separator", ";", "--decimal", ","]) == 1
+    line = _one_error_line(capsys.readouterr().err)
+    assert "holds '0.5'" in line and "a decimal point, but --decimal is ','" in line
+
+
+def test_decimal_mark_equal_to_separator_is_refused(tmp_path, capsys):
+    path = _write(tmp_path / "d.csv", GOOD)
+    assert main(["sweep", str(path), "--target", "y", "--decimal", ","]) == 1
+    line = _one_error_line(capsys.readouterr().err)
+    assert "--decimal ',' is also the field separator" in line
+
+
+def test_backslash_t_separator_reads_a_tab_file_without_warnings(
+    diabetes_frame, plain_result, tmp_path, capsys
+):
+    path = tmp_path / "tabs.tsv"
+    diabetes_frame.to_csv(path, sep="\t", index=False)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        # the two characters backslash and t, as `--separator '\t'` arrives from a shell
+        code, out, err, result = _sweep_saved(capsys, path, tmp_path, "--separator", "\\t")
+    assert code == 0, err
+    assert err == "" and "Recommended" in out
+    assert [str(w.message) for w in caught if issubclass(w.category, pd.errors.ParserWarning)] == []
+    _same_sweep(result, plain_result)
+
+
+def test_backslash_t_from_a_shell_leaks_no_parser_warning(diabetes_frame, tmp_path, capsys):
+    # a real process, with every warning shown: nothing but the summary comes out
+    path = tmp_path / "tabs.tsv"
+    diabetes_frame.to_csv(path, sep="\t", index=False)
+    env = dict(
+        os.environ, PYTHONPATH=os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")])
+    )
+    command = f"{shlex.quote(sys.executable)} -W always -m complexity sweep {path} "
+    command += "--target target --folds 5 --separator '\\t'"
+    proc = subprocess.run(
+        command, shell=True, capture_output=True, text=True, env=env, timeout=120, check=False
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stderr == ""
+    assert "Recommended" in proc.stdout

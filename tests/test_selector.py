@@ -243,6 +243,85 @@ def test_grid_search_over_the_rule(diabetes):
     assert grid.best_estimator_.rule == best and hasattr(grid.best_estimator_, "capacity_")
 
 
+def test_nested_parameters_of_the_ladder_and_the_plan(diabetes):
+    # scikit-learn's parameter protocol (BaseEstimator.get_params / set_params): a parameter
+    # that has parameters of its own is listed and set as ``name__parameter``
+    sel = cx.ComplexitySelector(cx.PolynomialLadder(range(0, 4)), plan=cx.Bootstrap(20))
+    params = sel.get_params(deep=True)
+    assert params["ladder__degrees"] == (0, 1, 2, 3)
+    assert params["ladder__domain"] is None
+    assert params["plan__n_resamples"] == 20
+    sel.set_params(ladder__degrees=range(0, 6), plan__n_resamples=30)
+    assert sel.ladder.capacities == (0, 1, 2, 3, 4, 5)
+    assert sel.plan.n_resamples == 30
+
+    twin = clone(sel)
+    assert twin.ladder is not sel.ladder and twin.plan is not sel.plan
+    assert twin.get_params(deep=True).keys() == sel.get_params(deep=True).keys()
+    for name, value in sel.get_params(deep=True).items():
+        if name not in ("ladder", "plan"):  # the objects themselves are new copies
+            assert twin.get_params(deep=True)[name] == value, name
+    assert repr(twin) == repr(sel)
+
+
+def test_inner_estimator_parameters_are_nested_names(diabetes):
+    from sklearn.neighbors import KNeighborsRegressor
+
+    knn = KNeighborsRegressor()
+    ladder = cx.ParamLadder(knn, "n_neighbors", [1, 5, 20], simpler="high")
+    sel = cx.ComplexitySelector(ladder, plan=cx.CrossValidation(3))
+    assert sel.get_params()["ladder__estimator__weights"] == "uniform"
+    sel.set_params(ladder__estimator__weights="distance")
+    assert knn.get_params()["weights"] == "distance"
+    twin = clone(sel)
+    assert twin.ladder.estimator is not knn  # scikit-learn's clone of the inner estimator
+    assert twin.ladder.estimator.get_params() == knn.get_params()
+
+
+def test_set_params_gives_the_constructors_errors():
+    sel = cx.ComplexitySelector(cx.PolynomialLadder(range(0, 3)), plan=cx.Bootstrap(20))
+    with pytest.raises(TypeError, match=r"^degrees must be a list or range of values; got 'bad'"):
+        sel.set_params(ladder__degrees="bad")
+    with pytest.raises(ValueError, match=r"degrees must contain whole numbers >= 0; got -1"):
+        sel.set_params(ladder__degrees=[-1, 2])
+    with pytest.raises(ValueError, match=r"n_resamples must be an int >= 2; got 1"):
+        sel.set_params(plan__n_resamples=1)
+    with pytest.raises(ValueError, match=r"'degree' is not a parameter of PolynomialLadder; "):
+        sel.set_params(ladder__degree=2)
+    # a refused value leaves the ladder and the plan as they were
+    assert sel.ladder.degrees == (0, 1, 2) and sel.plan.n_resamples == 20
+
+
+@pytest.mark.filterwarnings("ignore::complexity.ExtrapolationWarning")  # unshuffled outer folds
+def test_grid_search_over_the_ladders_degrees(diabetes):
+    # Reference: GridSearchCV's best score equals the best mean of cross_val_score over the same
+    # folds for selectors built directly with each candidate ladder (scikit-learn's own loop).
+    X, y = diabetes
+    X = X[:, [2]]  # one predictor: bmi
+    candidates = [range(0, 3), range(0, 6)]
+    sel = cx.ComplexitySelector(
+        cx.PolynomialLadder(range(0, 2)), plan=cx.CrossValidation(5), rule="min", random_state=4
+    )
+    grid = GridSearchCV(sel, {"ladder__degrees": candidates}, cv=3).fit(X, y)
+    by_hand = [
+        cross_val_score(
+            cx.ComplexitySelector(
+                cx.PolynomialLadder(d), plan=cx.CrossValidation(5), rule="min", random_state=4
+            ),
+            X,
+            y,
+            cv=KFold(3),  # what cv=3 means for a regressor
+        ).mean()
+        for d in candidates
+    ]
+    assert grid.best_score_ == pytest.approx(max(by_hand), rel=1e-12, abs=1e-12)
+    np.testing.assert_allclose(grid.cv_results_["mean_test_score"], by_hand, rtol=1e-12)
+    best = candidates[int(np.argmax(by_hand))]
+    assert grid.best_params_ == {"ladder__degrees": best}
+    assert grid.best_estimator_.ladder.capacities == tuple(best)
+    assert sel.ladder.capacities == (0, 1)  # the grid worked on clones
+
+
 # ------------------------------------------------------------------ extrapolation guard
 
 
