@@ -197,7 +197,13 @@ def _check_data(
 
 def _check_loss_fits(loss: L.Loss, models: list[Any]) -> bool:
     """Whether the models are classifiers; refuse a loss that does not fit them."""
-    clf = is_classifier(models[0])
+    kinds = {bool(is_classifier(m)) for m in models}
+    if len(kinds) > 1:
+        raise ValueError(
+            "the ladder mixes classifiers and regressors across its capacities (e.g. a feature "
+            "count of 0 gives a mean-only regressor); use capacities of one kind."
+        )
+    clf = kinds.pop()
     if loss.classification is True and not clf:
         raise ValueError(
             f"loss={loss.name!r} scores class labels, but the ladder's estimator "
@@ -258,8 +264,9 @@ def _score(
     if loss.response == "predict_proba":
         assert d.classes is not None and d.codes is not None
         proba = L.align_proba(est.predict_proba(Xr), est.classes_, d.classes)
-        fn = L.brier_points if loss.name == "brier" else L.log_loss_points
-        return fn(d.codes[rows], proba), None, proba, float("nan")
+        if loss.name == "brier":  # the split needs the probabilities themselves
+            return L.brier_points(d.codes[rows], proba), None, proba, float("nan")
+        return L.log_loss_points(d.codes[rows], proba), None, None, float("nan")
     pred = np.asarray(est.predict(Xr)).reshape(-1)
     if pred.shape[0] != rows.size:
         raise ValueError(f"predict returned {pred.shape[0]} values for {rows.size} rows")
@@ -267,16 +274,23 @@ def _score(
         assert d.classes is not None
         codes = L.encode_labels(pred, d.classes, name="predict's output")
         return L.zero_one_points(d.codes[rows], codes), codes, None, float("nan")
-    fn = L.squared_error_points if loss.name == "squared-error" else L.absolute_error_points
-    return fn(d.y[rows], pred), None, None, float("nan")
+    regression = L.squared_error_points if loss.name == "squared-error" else L.absolute_error_points
+    return regression(d.y[rows], pred), None, None, float("nan")
 
 
-def _fit_resample(spec: _Spec, r: Resample, keys: list[list[str]]) -> tuple[int, list[_Fit]]:
+_Outcome = tuple[int, int, NDArray[np.intp], list[_Fit]]  # index, replicate, test rows, fits
+
+
+def _fit_resample(spec: _Spec, r: Resample, keys: list[list[str]], ladder: Ladder) -> _Outcome:
     d = spec.data
     assert r.train is not None
     X_tr, y_tr = d.X[r.train], d.y[r.train]
     fits = []
     for c, model in enumerate(spec.models):
+        reason = ladder.training_problem(c, X_tr)
+        if reason is not None:
+            fits.append(_Fit(failure=reason))
+            continue
         try:
             est = _seed_estimator(
                 model, child_seed(spec.root, STREAM_ESTIMATOR, r.index, c), keys[c]
@@ -288,12 +302,12 @@ def _fit_resample(spec: _Spec, r: Resample, keys: list[list[str]]) -> tuple[int,
             fits.append(_Fit(points, predicted, proba, score_loss))
         except Exception as exc:  # a failing fit is recorded, the sweep goes on
             fits.append(_Fit(failure=_message(exc)))
-    return r.index, fits
+    return r.index, r.replicate, r.test, fits
 
 
-def _fit_chunk(spec: _Spec, chunk: Sequence[Resample]) -> list[tuple[int, list[_Fit]]]:
-    keys = [_random_state_keys(m) for m in spec.models]
-    return [_fit_resample(spec, r, keys) for r in chunk]
+def _fit_chunk(spec: _Spec, ladder: Ladder, chunk: Sequence[Resample]) -> list[_Outcome]:
+    keys = [_random_state_keys(m) for m in spec.models]  # once per chunk, not per fit
+    return [_fit_resample(spec, r, keys, ladder) for r in chunk]
 
 
 def _chunks(n: int, n_jobs: int | None) -> list[tuple[int, int]]:
@@ -577,18 +591,18 @@ def classification_sweep(
 
     tallies = _Tallies(n, C, R, K, the_loss)
     chunks = _chunks(R, n_jobs)
-    tasks = (delayed(_fit_chunk)(spec, resamples[a:b]) for a, b in chunks)
+    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
+    tasks = (delayed(_fit_chunk)(spec, ladder, resamples[a:b]) for a, b in chunks)
     results: Any = (
-        [_fit_chunk(spec, resamples[:R])]
+        [_fit_chunk(spec, ladder, resamples[:R])]
         if len(chunks) == 1
         else Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
     )
     replicate_of = np.zeros(R, dtype=np.intp)
-    for outcome in results:
-        for index, fits in outcome:
-            r = resamples[index]
-            replicate_of[index] = r.replicate
-            tallies.add(index, r.test, fits)
+    for outcome in results:  # in submission order, so the sums do not depend on n_jobs
+        for index, replicate, test, fits in outcome:
+            replicate_of[index] = replicate
+            tallies.add(index, test, fits)
     if tallies.resample_n.sum() == 0:
         first = next(iter(tallies.failures.values()), "no fits were made")
         raise RuntimeError(f"every fit failed; the first failure: {first}")

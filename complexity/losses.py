@@ -22,8 +22,9 @@ Splits (pure functions on tallies of predictions, with the meaning of every colu
 
 - :func:`brier_split`: the squared-error decomposition applied to each class's probability and
   summed over classes.
-- :func:`zero_one_split`: Domingos (2000), "A unified bias-variance decomposition for zero-one
-  and squared loss" (AAAI/ICML 2000): main prediction, bias, unbiased/biased/net variance.
+- :func:`zero_one_split`: Domingos (2000), "A unified bias-variance decomposition and its
+  applications", ICML 2000 (title from memory): main prediction, bias, unbiased, biased and net
+  variance.
 
 Class order is fixed once from the full data (``numpy.unique(y)``, labels kept as given);
 :func:`align_proba` maps a fitted model's ``classes_`` into that order, with zero probability
@@ -315,8 +316,8 @@ def zero_one_split(votes: ArrayLike, optimal: ArrayLike) -> dict[str, float]:
         V(x) = P(y != y_m)                  variance (over training sets)
         c2(x) = 1 if B(x) = 0 else -P(y = y* | y != y_m)
 
-    and ``E[1[y != y*]] = B(x) + c2(x) V(x)`` exactly at every point (Domingos 2000, Theorem
-    for zero-one loss; for two classes c2 = -1 on biased points).
+    and ``E[1[y != y*]] = B(x) + c2(x) V(x)`` exactly at every point (Domingos 2000, the
+    zero-one loss theorem; for two classes c2 = -1 on biased points).
 
     Parameters
     ----------

@@ -11,6 +11,7 @@ import pandas as pd
 import pytest
 from sklearn.datasets import load_breast_cancer, load_diabetes, load_digits, load_iris
 from sklearn.linear_model import LogisticRegression
+from sklearn.metrics import balanced_accuracy_score, make_scorer
 from sklearn.model_selection import PredefinedSplit, StratifiedKFold, cross_val_score
 from sklearn.neighbors import KNeighborsClassifier, KNeighborsRegressor
 from sklearn.pipeline import make_pipeline
@@ -56,6 +57,8 @@ def test_accuracy_matches_cross_val_score_iris():
         # equal fold sizes (150 / 5): the pooled test loss is the mean over folds
         assert out.curves.loc[cap, "test_loss"] == pytest.approx(1 - ref.mean(), abs=1e-12)
     _against_cross_val_score(ladder, X, y, plan, "accuracy", "accuracy")  # loss = -accuracy
+    balanced = make_scorer(balanced_accuracy_score)  # a scorer callable
+    _against_cross_val_score(ladder, X, y, plan, balanced, balanced)
 
 
 def test_log_loss_matches_cross_val_score_iris():

@@ -1,7 +1,7 @@
 """Losses and their published bias-variance splits (complexity.losses).
 
-Sources: Domingos (2000), "A unified bias-variance decomposition for zero-one and squared loss"
-(definitions of main prediction, bias, variance, c2 and net variance; worked by hand below);
+Sources: Domingos (2000), "A unified bias-variance decomposition and its applications", ICML
+2000, title from memory (definitions of main prediction, bias, variance, c2 and net variance; worked by hand below);
 Brier (1950) for the multi-class Brier score; the squared-error decomposition per class
 (common practice); scikit-learn's metrics for the per-point losses.
 """
