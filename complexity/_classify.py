@@ -23,11 +23,10 @@ import numpy as np
 import pandas as pd
 from joblib import Parallel, delayed, effective_n_jobs
 from numpy.typing import ArrayLike, NDArray
-from sklearn.base import is_classifier
+from sklearn.base import clone, is_classifier
 
 from . import losses as L
-from ._validation import _short_repr, as_seed_sequence, check_n_jobs, check_X, check_y, row_groups
-from .engine.generic import _random_state_keys, _seed_estimator
+from ._validation import _short_repr, as_seed_sequence, check_n_jobs, check_X, check_y
 from .ladders import Ladder, capacity_index
 from .plans import (
     STREAM_ESTIMATOR,
@@ -35,6 +34,7 @@ from .plans import (
     Plan,
     Resample,
     Simulation,
+    SplitLayout,
     as_plan,
     child_seed,
     default_plan,
@@ -134,14 +134,10 @@ def rule_curves(curves: pd.DataFrame) -> pd.DataFrame:
     >>> rule_curves(c).columns.tolist()
     ['test_mse', 'test_mse_se']
     """
-    view = pd.DataFrame(
+    return pd.DataFrame(
         {"test_mse": curves["test_loss"], "test_mse_se": curves["test_loss_se"]},
         index=curves.index,
     )
-    return view
-
-
-# ---------------------------------------------------------------- validation
 
 
 @dataclass(frozen=True)
@@ -153,39 +149,11 @@ class _Data:
     names: tuple[str, ...] | None
 
 
-def _check_labels(y: Any, n: int) -> tuple[NDArray[Any], NDArray[Any], NDArray[np.intp]]:
-    arr = np.array(y, copy=True)
-    if arr.ndim == 2 and arr.shape[1] == 1:
-        arr = arr[:, 0]
-    if arr.ndim != 1:
-        raise ValueError(f"y must be 1-D (one class label per row); got shape {arr.shape}.")
-    if arr.shape[0] != n:
-        raise ValueError(f"X and y have different lengths: X has {n} rows, y has {arr.shape[0]}.")
-    missing = pd.isna(arr)
-    if np.any(missing):
-        raise ValueError(
-            f"y has {int(missing.sum())} missing label(s) (first at row "
-            f"{int(np.flatnonzero(missing)[0])}); drop those rows or label them."
-        )
-    try:
-        classes = np.unique(arr)
-    except TypeError:
-        raise TypeError(
-            "y mixes label types that cannot be sorted (e.g. numbers and strings); "
-            f"got {_short_repr(arr[:5].tolist())}. Use one type for every label."
-        ) from None
-    if classes.size < 2:
-        raise ValueError(
-            f"y has a single class {classes.tolist()}; a classifier needs two or more."
-        )
-    return arr, classes, L.encode_labels(arr, classes)
-
-
 def _check_data(
     Xa: NDArray[np.float64], names: tuple[str, ...] | None, y: Any, classification: bool
 ) -> _Data:
     if classification:
-        ya, classes, codes = _check_labels(y, Xa.shape[0])
+        ya, classes, codes = L.check_labels(y, Xa.shape[0])
         return _Data(Xa, ya, codes, classes, names)
     yf = check_y(y)
     if yf.shape[0] != Xa.shape[0]:
@@ -223,9 +191,6 @@ def _check_loss_fits(loss: L.Loss, models: list[Any]) -> bool:
     return bool(clf)
 
 
-# ---------------------------------------------------------------- fitting (in the workers)
-
-
 @dataclass(frozen=True)
 class _Spec:
     """What every task needs, sent once per task."""
@@ -245,6 +210,30 @@ class _Fit:
     proba: NDArray[np.float64] | None = None  # probabilities in the full class order (brier)
     score_loss: float = float("nan")  # minus the scorer's score (scorers)
     failure: str = ""
+
+
+def _random_state_keys(model: Any) -> list[str]:
+    """The ``random_state`` parameters of ``model`` left as None, in sorted order."""
+    params = model.get_params(deep=True)
+    return sorted(
+        k
+        for k, v in params.items()
+        if (k == "random_state" or k.endswith("__random_state")) and v is None
+    )
+
+
+def _seed_estimator(model: Any, seed: np.random.SeedSequence, keys: list[str] | None = None) -> Any:
+    """Clone ``model``; set each ``random_state`` left as None to an int drawn from ``seed``.
+
+    The generic engine's scheme (sorted keys, one ``integers(0, 2**31 - 1)`` draw each), kept
+    here so this module does not depend on the engine's internals.
+    """
+    est = clone(model)
+    keys = _random_state_keys(est) if keys is None else keys
+    if keys:
+        draws = np.random.default_rng(seed).integers(0, 2**31 - 1, size=len(keys))
+        est.set_params(**{k: int(d) for k, d in zip(keys, draws)})
+    return est
 
 
 def _message(exc: BaseException) -> str:
@@ -317,9 +306,6 @@ def _chunks(n: int, n_jobs: int | None) -> list[tuple[int, int]]:
     return [(i, min(i + size, n)) for i in range(0, n, size)]
 
 
-# ---------------------------------------------------------------- streaming tallies
-
-
 class _Tallies:
     """Running sums over resamples; added to in resample order only."""
 
@@ -333,6 +319,7 @@ class _Tallies:
         self.p_sum = np.zeros((C, n, K)) if brier else None
         self.p_sq = np.zeros((C, n, K)) if brier else None
         self.failures: dict[tuple[int, int], str] = {}
+        self.replicate_of = np.zeros(R, dtype=np.intp)
 
     def add(self, index: int, test: NDArray[np.intp], fits: list[_Fit]) -> None:
         for c, f in enumerate(fits):
@@ -353,9 +340,6 @@ class _Tallies:
             if self.p_sum is not None and self.p_sq is not None and f.proba is not None:
                 np.add.at(self.p_sum[c], test, f.proba)
                 np.add.at(self.p_sq[c], test, f.proba**2)
-
-
-# ---------------------------------------------------------------- standard errors
 
 
 def _split_se(scores: NDArray[np.float64]) -> float:
@@ -403,95 +387,6 @@ _SE_TEXT = {
 }
 
 
-# ---------------------------------------------------------------- splits
-
-
-def _optimal_classes(
-    X: NDArray[np.float64], codes: NDArray[np.intp], K: int
-) -> tuple[NDArray[np.intp], NDArray[np.float64]] | None:
-    """Majority label and 1 - its share among rows with the same x, when every x is replicated."""
-    labels, sizes = row_groups(X)
-    if sizes.min() < 2:
-        return None
-    table = np.zeros((sizes.size, K), dtype=np.int64)
-    np.add.at(table, (labels, codes), 1)
-    majority = np.argmax(table, axis=1)  # ties: the first class in the class order
-    noise = 1.0 - table.max(axis=1) / sizes
-    return majority[labels].astype(np.intp), noise[labels]
-
-
-_ZERO_ONE_COLUMNS = (
-    "bias",
-    "variance",
-    "variance_unbiased",
-    "variance_biased",
-    "net_variance",
-    "noise",
-    "noise_term",
-)
-
-
-def _zero_one_columns(
-    votes: NDArray[np.int64],
-    codes: NDArray[np.intp],
-    optimal: tuple[NDArray[np.intp], NDArray[np.float64]] | None,
-) -> dict[str, float]:
-    keep = votes.sum(axis=1) >= 2
-    if not keep.any():
-        return dict.fromkeys(_ZERO_ONE_COLUMNS, np.nan)
-    v = votes[keep]
-    observed = L.zero_one_split(v, codes[keep])
-    if optimal is None:
-        parts = observed
-        noise = noise_term = np.nan
-    else:
-        parts = L.zero_one_split(v, optimal[0][keep])
-        noise = float(np.mean(optimal[1][keep]))
-        noise_term = observed["loss"] - parts["loss"]
-    out = {k: parts[k] for k in _ZERO_ONE_COLUMNS[:5]}
-    return {**out, "noise": noise, "noise_term": noise_term}
-
-
-def _brier_columns(
-    p_sum: NDArray[np.float64], p_sq: NDArray[np.float64], count: NDArray[np.int64], codes: Any
-) -> dict[str, float]:
-    B = count.astype(np.float64)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = p_sum / B[:, None]
-    m2 = np.maximum(p_sq - p_sum * mean, 0.0)
-    s = L.brier_split(np.nan_to_num(mean), m2, B, codes=codes)
-    return {"bias_sq_plus_noise": s["bias_sq_plus_noise"], "variance": s["variance"]}
-
-
-def _split_text(loss: L.Loss, optimal_known: bool) -> str:
-    if loss.split == "domingos":
-        noise = (
-            "noise estimated from rows sharing the same x (optimal class = majority label there)"
-            if optimal_known
-            else "noise not estimated (x is not replicated): the optimal class is taken to be the "
-            "observed label, so bias includes the noise"
-        )
-        return (
-            "zero-one loss split of Domingos (2000): main prediction = mode over training sets, "
-            "bias = 1[main != optimal], variance = P(prediction != main), net variance = "
-            f"unbiased - biased variance (c2-weighted for more than two classes); {noise}"
-        )
-    if loss.split == "brier":
-        return (
-            "Brier score split: the squared-error decomposition per class, summed; on data the "
-            "observed label gives bias_sq_plus_noise and variance only"
-        )
-    if loss.split == "squared-error":
-        return (
-            "squared error: the split into noise, squared bias and variance is made by "
-            "complexity.sweep; only the test error is reported here"
-        )
-    return f"{loss.description}: bias-variance split not defined; only the test error is reported"
-
-
-# ---------------------------------------------------------------- the sweep
-
-
 def _resolve_plan(plan: Any, n: int) -> Plan:
     the_plan = default_plan(n) if plan is None else as_plan(plan)
     if isinstance(the_plan, Simulation):
@@ -516,6 +411,119 @@ def _full_fit_losses(spec: _Spec) -> NDArray[np.float64]:
             continue
         out[c] = score_loss if points is None else float(np.mean(points))
     return out
+
+
+def _run(
+    spec: _Spec, ladder: Ladder, resamples: Sequence[Resample], K: int, n_jobs: int | None
+) -> _Tallies:
+    """Fit every capacity on every resample (joblib) and tally the losses in resample order."""
+    n, C, R = spec.data.X.shape[0], len(spec.models), len(resamples)
+    tallies = _Tallies(n, C, R, K, spec.loss)
+    chunks = _chunks(R, n_jobs)
+    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
+    tasks = (delayed(_fit_chunk)(spec, ladder, resamples[a:b]) for a, b in chunks)
+    results: Any = (
+        [_fit_chunk(spec, ladder, resamples[:R])]
+        if len(chunks) == 1
+        else Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
+    )
+    for outcome in results:  # in submission order, so the sums do not depend on n_jobs
+        for index, replicate, test, fits in outcome:
+            tallies.replicate_of[index] = replicate
+            tallies.add(index, test, fits)
+    if tallies.resample_n.sum() == 0:
+        first = next(iter(tallies.failures.values()), "no fits were made")
+        raise RuntimeError(f"every fit failed; the first failure: {first}")
+    return tallies
+
+
+def _curves(
+    tallies: _Tallies,
+    spec: _Spec,
+    ladder: Ladder,
+    layout: SplitLayout,
+    optimal: tuple[NDArray[np.intp], NDArray[np.float64]] | None,
+) -> tuple[pd.DataFrame, str]:
+    """The curves table and the key of the standard error it carries."""
+    n, codes = spec.data.X.shape[0], spec.data.codes
+    scorer = spec.loss.response == "scorer"
+    kind = (
+        layout.kind if layout.kind == "bootstrap" else "pass" if layout.partition else "corrected"
+    )
+    se_key = "bootstrap-scorer" if kind == "bootstrap" and scorer else kind
+    # a scorer has no per-point value: on the bootstrap its resample scores get the corrected SE
+    kind_c, tr, te = (
+        ("corrected", float(n), 0.368 * n)
+        if se_key == "bootstrap-scorer"
+        else (kind, layout.train_size, layout.test_size)
+    )
+    with np.errstate(invalid="ignore", divide="ignore"):
+        scores = tallies.resample_sum / tallies.resample_n
+    train_loss = _full_fit_losses(spec)
+    rows = []
+    for c in range(len(spec.models)):
+        scored = tallies.count[:, c] > 0
+        ok = np.isfinite(scores[:, c])
+        if scorer:
+            per_point = np.empty(0)
+            test = float(np.mean(scores[ok, c])) if ok.any() else np.nan
+        else:
+            per_point = tallies.loss_sum[scored, c] / tallies.count[scored, c]
+            test = float(np.mean(per_point)) if per_point.size else np.nan
+        row: dict[str, float] = {
+            "test_loss": test,
+            "test_loss_se": _se(kind_c, per_point, scores[:, c], tallies.replicate_of, tr, te),
+            "train_loss": float(train_loss[c]),
+            "n_scored": float(scored.sum()),
+        }
+        if tallies.votes is not None:
+            assert codes is not None
+            row.update(L.zero_one_columns(tallies.votes[c], codes, optimal))
+        if tallies.p_sum is not None and tallies.p_sq is not None:
+            row.update(
+                L.brier_columns(tallies.p_sum[c], tallies.p_sq[c], tallies.count[:, c], codes)
+            )
+        rows.append(row)
+    index = capacity_index(ladder.capacities, ladder.capacity_name)
+    return pd.DataFrame(rows, index=index), se_key
+
+
+def _notes(tallies: _Tallies, loss: L.Loss, layout: SplitLayout, split: str) -> list[str]:
+    notes = []
+    if loss.split in ("not defined", "squared-error"):
+        notes.append(split)
+    elif (tallies.count.max(axis=0) < 2).all():
+        notes.append(
+            "every point was predicted by one training set only (a single K-fold pass?): the "
+            "split columns are empty; repeat the folds or use the bootstrap."
+        )
+    elif layout.kind != "bootstrap":
+        notes.append(
+            "the split's variance is the spread over this plan's overlapping training sets, which "
+            "understates the spread over independent data sets; the bootstrap is closer to it."
+        )
+    if tallies.failures:
+        notes.append(
+            f"{len(tallies.failures)} fit(s) failed and were left out; the first: "
+            f"{next(iter(tallies.failures.values()))}"
+        )
+    return notes
+
+
+def _replicate_stability(
+    tallies: _Tallies, curves: pd.DataFrame, capacities: tuple[Any, ...], rule: str
+) -> pd.Series:
+    """Each replicate's own curve (its resamples' losses pooled) under the headline SEs."""
+    rep = tallies.replicate_of
+    G, C = int(rep.max()) + 1, len(capacities)
+    rep_sum, rep_n = np.zeros((G, C)), np.zeros((G, C))
+    done = np.isfinite(tallies.resample_sum)
+    np.add.at(rep_sum, rep, np.where(done, tallies.resample_sum, 0.0))
+    np.add.at(rep_n, rep, np.where(done, tallies.resample_n, 0))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rep_err = np.where(rep_n > 0, rep_sum / rep_n, np.nan)
+    se_rows = np.tile(curves["test_loss_se"].to_numpy(), (G, 1))
+    return stability(rep_err, se_rows, capacities, rule)
 
 
 def classification_sweep(
@@ -583,109 +591,26 @@ def classification_sweep(
     classification = _check_loss_fits(the_loss, models)
     data = _check_data(Xa, names, y, classification)
     the_plan = _resolve_plan(plan, data.X.shape[0])
-    n, C = data.X.shape[0], len(models)
+    n = data.X.shape[0]
     K = 0 if data.classes is None else int(data.classes.size)
     resamples = the_plan.resamples(n, root, data.X, data.y, groups)
-    R = len(resamples)
     spec = _Spec(models, the_loss, data, root)
 
-    tallies = _Tallies(n, C, R, K, the_loss)
-    chunks = _chunks(R, n_jobs)
-    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
-    tasks = (delayed(_fit_chunk)(spec, ladder, resamples[a:b]) for a, b in chunks)
-    results: Any = (
-        [_fit_chunk(spec, ladder, resamples[:R])]
-        if len(chunks) == 1
-        else Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
-    )
-    replicate_of = np.zeros(R, dtype=np.intp)
-    for outcome in results:  # in submission order, so the sums do not depend on n_jobs
-        for index, replicate, test, fits in outcome:
-            replicate_of[index] = replicate
-            tallies.add(index, test, fits)
-    if tallies.resample_n.sum() == 0:
-        first = next(iter(tallies.failures.values()), "no fits were made")
-        raise RuntimeError(f"every fit failed; the first failure: {first}")
-
+    tallies = _run(spec, ladder, resamples, K, n_jobs)
     layout = split_layout(the_plan, resamples, n)
-    kind = (
-        layout.kind if layout.kind == "bootstrap" else ("pass" if layout.partition else "corrected")
-    )
-    se_key = "bootstrap-scorer" if kind == "bootstrap" and the_loss.response == "scorer" else kind
-    with np.errstate(invalid="ignore", divide="ignore"):
-        scores = tallies.resample_sum / tallies.resample_n
     optimal = None
     if the_loss.split == "domingos":
         assert data.codes is not None
-        optimal = _optimal_classes(data.X, data.codes, K)
-    train_loss = _full_fit_losses(spec)
-
-    rows = []
-    for c in range(C):
-        scored = tallies.count[:, c] > 0
-        if the_loss.response == "scorer":
-            ok = np.isfinite(scores[:, c])
-            test = float(np.mean(scores[ok, c])) if ok.any() else np.nan
-            per_point = np.empty(0)
-            if kind == "bootstrap":
-                kind_c = "corrected"
-                tr, te = float(n), 0.368 * n
-            else:
-                kind_c, tr, te = kind, layout.train_size, layout.test_size
-        else:
-            per_point = tallies.loss_sum[scored, c] / tallies.count[scored, c]
-            test = float(np.mean(per_point)) if per_point.size else np.nan
-            kind_c, tr, te = kind, layout.train_size, layout.test_size
-        row: dict[str, float] = {
-            "test_loss": test,
-            "test_loss_se": _se(kind_c, per_point, scores[:, c], replicate_of, tr, te),
-            "train_loss": float(train_loss[c]),
-            "n_scored": float(scored.sum()),
-        }
-        if tallies.votes is not None:
-            assert data.codes is not None
-            row.update(_zero_one_columns(tallies.votes[c], data.codes, optimal))
-        if tallies.p_sum is not None and tallies.p_sq is not None:
-            row.update(
-                _brier_columns(tallies.p_sum[c], tallies.p_sq[c], tallies.count[:, c], data.codes)
-            )
-        rows.append(row)
-    curves = pd.DataFrame(rows, index=capacity_index(ladder.capacities, ladder.capacity_name))
-
-    notes = []
-    split = _split_text(the_loss, optimal is not None)
-    if the_loss.split in ("not defined", "squared-error"):
-        notes.append(split)
-    elif (tallies.count.max(axis=0) < 2).all():
-        notes.append(
-            "every point was predicted by one training set only (a single K-fold pass?): the "
-            "split columns are empty; repeat the folds or use the bootstrap."
-        )
-    elif layout.kind != "bootstrap":
-        notes.append(
-            "the split's variance is the spread over this plan's overlapping training sets, which "
-            "understates the spread over independent data sets; the bootstrap is closer to it."
-        )
-    if tallies.failures:
-        notes.append(
-            f"{len(tallies.failures)} fit(s) failed and were left out; the first: "
-            f"{next(iter(tallies.failures.values()))}"
-        )
-
+        optimal = L.replicate_optimal(data.X, data.codes, K)
+    curves, se_key = _curves(tallies, spec, ladder, layout, optimal)
+    split = L.describe_split(the_loss, optimal is not None)
+    notes = _notes(tallies, the_loss, layout, split)
     view = rule_curves(curves)
     pos = choose(rule, view)
     table = rule_table(view)
-    # each replicate's own curve: its resamples' losses pooled, with the headline SEs
-    G = int(replicate_of.max()) + 1
-    rep_sum, rep_n = np.zeros((G, C)), np.zeros((G, C))
-    done = np.isfinite(tallies.resample_sum)
-    np.add.at(rep_sum, replicate_of, np.where(done, tallies.resample_sum, 0.0))
-    np.add.at(rep_n, replicate_of, np.where(done, tallies.resample_n, 0))
+    stab = _replicate_stability(tallies, curves, ladder.capacities, rule)
     with np.errstate(invalid="ignore", divide="ignore"):
-        rep_err = np.where(rep_n > 0, rep_sum / rep_n, np.nan)
-    se_rows = np.tile(curves["test_loss_se"].to_numpy(), (G, 1))
-    stab = stability(rep_err, se_rows, ladder.capacities, rule)
-
+        scores = tallies.resample_sum / tallies.resample_n
     resample_loss = pd.DataFrame(
         scores, columns=capacity_index(ladder.capacities, ladder.capacity_name)
     )

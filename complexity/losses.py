@@ -38,9 +38,10 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
-from ._validation import _short_repr
+from ._validation import _short_repr, row_groups
 
 __all__ = [
     "LOSS_NAMES",
@@ -48,12 +49,17 @@ __all__ = [
     "absolute_error_points",
     "align_proba",
     "as_loss",
+    "brier_columns",
     "brier_points",
     "brier_split",
+    "check_labels",
+    "describe_split",
     "encode_labels",
     "log_loss_points",
     "main_prediction",
+    "replicate_optimal",
     "squared_error_points",
+    "zero_one_columns",
     "zero_one_points",
     "zero_one_split",
 ]
@@ -62,27 +68,23 @@ __all__ = [
 LOSS_NAMES = ("squared-error", "absolute-error", "log-loss", "brier", "zero-one")
 
 _EPS = float(np.finfo(np.float64).eps)
+_TRUTH = ("variance", "bias_sq", "noise", "expected_loss")
 
-_DESCRIPTION = {
-    "squared-error": "squared error (y - f)^2",
-    "absolute-error": "absolute error |y - f|",
-    "log-loss": "log loss -log p(observed class), p clipped to [eps, 1 - eps]",
-    "brier": "Brier score sum_k (p_k - 1[t = k])^2 over all classes",
-    "zero-one": "zero-one loss 1[predicted class != observed class] (1 - accuracy)",
-}
-_RESPONSE = {
-    "squared-error": "predict",
-    "absolute-error": "predict",
-    "log-loss": "predict_proba",
-    "brier": "predict_proba",
-    "zero-one": "predict",
-}
-_SPLIT = {
-    "squared-error": "squared-error",
-    "absolute-error": "not defined",
-    "log-loss": "not defined",
-    "brier": "brier",
-    "zero-one": "domingos",
+#: name -> (what the model is asked for, the split that applies, description)
+_NAMED = {
+    "squared-error": ("predict", "squared-error", "squared error (y - f)^2"),
+    "absolute-error": ("predict", "not defined", "absolute error |y - f|"),
+    "log-loss": (
+        "predict_proba",
+        "not defined",
+        "log loss -log p(observed class), p clipped to [eps, 1 - eps]",
+    ),
+    "brier": ("predict_proba", "brier", "Brier score sum_k (p_k - 1[t = k])^2 over all classes"),
+    "zero-one": (
+        "predict",
+        "domingos",
+        "zero-one loss 1[predicted class != observed class] (1 - accuracy)",
+    ),
 }
 
 
@@ -148,12 +150,9 @@ def as_loss(loss: str | Callable[..., Any] | Loss) -> Loss:
         return loss
     if isinstance(loss, str):
         if loss in LOSS_NAMES:
+            response, split, text = _NAMED[loss]
             return Loss(
-                loss,
-                _RESPONSE[loss],
-                _SPLIT[loss],
-                loss not in ("squared-error", "absolute-error"),
-                _DESCRIPTION[loss],
+                loss, response, split, loss not in ("squared-error", "absolute-error"), text
             )
         from sklearn.metrics import get_scorer, get_scorer_names
 
@@ -184,6 +183,42 @@ def as_loss(loss: str | Callable[..., Any] | Loss) -> Loss:
         f"loss must be one of {list(LOSS_NAMES)}, a scikit-learn scorer name or a callable "
         f"scorer(estimator, X, y); got {_short_repr(loss)}."
     )
+
+
+def check_labels(y: Any, n: int) -> tuple[NDArray[Any], NDArray[Any], NDArray[np.intp]]:
+    """Validate class labels; return (a copy of y, the class order ``numpy.unique(y)``, codes).
+
+    Examples
+    --------
+    >>> _, classes, codes = check_labels(["oak", "ash", "oak"], 3)
+    >>> classes.tolist(), codes.tolist()
+    (['ash', 'oak'], [1, 0, 1])
+    """
+    arr = np.array(y, copy=True)
+    if arr.ndim == 2 and arr.shape[1] == 1:
+        arr = arr[:, 0]
+    if arr.ndim != 1:
+        raise ValueError(f"y must be 1-D (one class label per row); got shape {arr.shape}.")
+    if arr.shape[0] != n:
+        raise ValueError(f"X and y have different lengths: X has {n} rows, y has {arr.shape[0]}.")
+    missing = pd.isna(arr)
+    if np.any(missing):
+        raise ValueError(
+            f"y has {int(missing.sum())} missing label(s) (first at row "
+            f"{int(np.flatnonzero(missing)[0])}); drop those rows or label them."
+        )
+    try:
+        classes = np.unique(arr)
+    except TypeError:
+        raise TypeError(
+            "y mixes label types that cannot be sorted (e.g. numbers and strings); "
+            f"got {_short_repr(arr[:5].tolist())}. Use one type for every label."
+        ) from None
+    if classes.size < 2:
+        raise ValueError(
+            f"y has a single class {classes.tolist()}; a classifier needs two or more."
+        )
+    return arr, classes, encode_labels(arr, classes)
 
 
 def encode_labels(labels: ArrayLike, classes: NDArray[Any], *, name: str = "y") -> NDArray[np.intp]:
@@ -441,7 +476,7 @@ def brier_split(
     keep = B >= 2
     out: dict[str, float] = {"n_points": float(keep.sum())}
     if not keep.any():
-        names = ("variance", "bias_sq_plus_noise") if truth is None else _TRUTH_KEYS
+        names = ("variance", "bias_sq_plus_noise") if truth is None else _TRUTH
         return {**dict.fromkeys(names, float("nan")), **out}
     mu, ss, B = mu[keep], ss[keep], B[keep]
     s2 = ss / (B[:, None] - 1.0)
@@ -465,9 +500,6 @@ def brier_split(
     return out
 
 
-_TRUTH_KEYS = ("variance", "bias_sq", "noise", "expected_loss")
-
-
 def squared_error_points(y: ArrayLike, pred: ArrayLike) -> NDArray[np.float64]:
     """Per-point squared error ``(y - f)^2``.
 
@@ -488,3 +520,130 @@ def absolute_error_points(y: ArrayLike, pred: ArrayLike) -> NDArray[np.float64]:
     [0.5, 0.5]
     """
     return np.abs(np.asarray(pred, dtype=np.float64) - np.asarray(y, dtype=np.float64))
+
+
+def replicate_optimal(
+    X: NDArray[np.float64], codes: NDArray[np.intp], K: int
+) -> tuple[NDArray[np.intp], NDArray[np.float64]] | None:
+    """Per row: the majority class among rows with the same x, and the noise 1 - its share.
+
+    Domingos's optimal prediction and noise N(x) = P(t != y*), estimated from replicated x. Only
+    when every x occurs at least twice (else None: the noise is not estimated). Ties go to the
+    first class in the class order.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> best, noise = replicate_optimal(np.array([[0.], [0.], [0.], [1.], [1.]]),
+    ...                                 np.array([0, 1, 1, 0, 0]), 2)
+    >>> best.tolist(), np.round(noise, 3).tolist()
+    ([1, 1, 1, 0, 0], [0.333, 0.333, 0.333, 0.0, 0.0])
+    """
+    labels, sizes = row_groups(X)
+    if sizes.min() < 2:
+        return None
+    table = np.zeros((sizes.size, K), dtype=np.int64)
+    np.add.at(table, (labels, codes), 1)
+    majority = np.argmax(table, axis=1)  # ties: the first class in the class order
+    noise = 1.0 - table.max(axis=1) / sizes
+    return majority[labels].astype(np.intp), noise[labels]
+
+
+_ZERO_ONE_COLUMNS = (
+    "bias",
+    "variance",
+    "variance_unbiased",
+    "variance_biased",
+    "net_variance",
+    "noise",
+    "noise_term",
+)
+
+
+def zero_one_columns(
+    votes: NDArray[np.int64],
+    codes: NDArray[np.intp],
+    optimal: tuple[NDArray[np.intp], NDArray[np.float64]] | None,
+) -> dict[str, float]:
+    """The zero-one split columns of one capacity, over the points with >= 2 predictions.
+
+    ``optimal`` is :func:`replicate_optimal`'s output, or None (noise not estimated: the optimal
+    class is the observed label, ``noise`` and ``noise_term`` are NaN). ``noise_term`` is the
+    loss against the observed labels minus the loss against the optimal class, so ``bias +
+    net_variance + noise_term`` is the test loss of those points.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> cols = zero_one_columns(np.array([[3, 1], [1, 3]]), np.array([0, 0]), None)
+    >>> cols["bias"], cols["net_variance"]
+    (0.5, 0.0)
+    """
+    keep = votes.sum(axis=1) >= 2
+    if not keep.any():
+        return dict.fromkeys(_ZERO_ONE_COLUMNS, np.nan)
+    v = votes[keep]
+    observed = zero_one_split(v, codes[keep])
+    if optimal is None:
+        parts = observed
+        noise = noise_term = np.nan
+    else:
+        parts = zero_one_split(v, optimal[0][keep])
+        noise = float(np.mean(optimal[1][keep]))
+        noise_term = observed["loss"] - parts["loss"]
+    out = {k: parts[k] for k in _ZERO_ONE_COLUMNS[:5]}
+    return {**out, "noise": noise, "noise_term": noise_term}
+
+
+def brier_columns(
+    p_sum: NDArray[np.float64], p_sq: NDArray[np.float64], count: NDArray[np.int64], codes: Any
+) -> dict[str, float]:
+    """The Brier split columns on data, from per-point sums and sums of squares of probabilities.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> p = np.array([[[0.5, 0.5]], [[0.7, 0.3]]])  # two predictions at one point
+    >>> cols = brier_columns(p.sum(axis=0), (p**2).sum(axis=0), np.array([2]), np.array([0]))
+    >>> round(cols["variance"], 6)
+    0.04
+    """
+    B = count.astype(np.float64)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = p_sum / B[:, None]
+    m2 = np.maximum(p_sq - p_sum * mean, 0.0)
+    s = brier_split(np.nan_to_num(mean), m2, B, codes=codes)
+    return {"bias_sq_plus_noise": s["bias_sq_plus_noise"], "variance": s["variance"]}
+
+
+def describe_split(loss: Loss, optimal_known: bool) -> str:
+    """One line: which split a sweep under ``loss`` reports, or that none is defined.
+
+    Examples
+    --------
+    >>> describe_split(as_loss("log-loss"), False).endswith("only the test error is reported")
+    True
+    """
+    if loss.split == "domingos":
+        noise = (
+            "noise estimated from rows sharing the same x (optimal class = majority label there)"
+            if optimal_known
+            else "noise not estimated (x is not replicated): the optimal class is taken to be the "
+            "observed label, so bias includes the noise"
+        )
+        return (
+            "zero-one loss split of Domingos (2000): main prediction = mode over training sets, "
+            "bias = 1[main != optimal], variance = P(prediction != main), net variance = "
+            f"unbiased - biased variance (c2-weighted for more than two classes); {noise}"
+        )
+    if loss.split == "brier":
+        return (
+            "Brier score split: the squared-error decomposition per class, summed; on data the "
+            "observed label gives bias_sq_plus_noise and variance only"
+        )
+    if loss.split == "squared-error":
+        return (
+            "squared error: the split into noise, squared bias and variance is made by "
+            "complexity.sweep; only the test error is reported here"
+        )
+    return f"{loss.description}: bias-variance split not defined; only the test error is reported"

@@ -227,3 +227,18 @@ def test_bad_input_is_refused_with_the_argument_named():
     X0, y0 = X.copy(), y.copy()
     classification_sweep(tree, X, y, plan=3, random_state=0)
     assert np.array_equal(X, X0) and np.array_equal(y, y0)
+
+
+def test_seeding_follows_the_generic_engine_scheme():
+    # the scheme of complexity.engine.generic: each random_state left as None, in sorted key
+    # order, gets one integers(0, 2**31 - 1) draw from the (resample, capacity) seed below
+    # STREAM_ESTIMATOR
+    from complexity._classify import _seed_estimator
+    from complexity.plans import STREAM_ESTIMATOR, child_seed
+
+    seed = child_seed(np.random.SeedSequence(3), STREAM_ESTIMATOR, 4, 1)
+    model = make_pipeline(StandardScaler(), DecisionTreeClassifier(), memory=None)
+    got = _seed_estimator(model, seed).get_params()["decisiontreeclassifier__random_state"]
+    assert got == int(np.random.default_rng(seed).integers(0, 2**31 - 1, size=1)[0])
+    fixed = _seed_estimator(DecisionTreeClassifier(random_state=5), seed)
+    assert fixed.random_state == 5  # a random_state the user set is kept
