@@ -236,7 +236,8 @@ def loocv_defined(leverage: ArrayLike, *, tol: float = LEVERAGE_TOL) -> NDArray[
     """
     h = np.asarray(leverage, dtype=np.float64)
     h = h[None, :] if h.ndim == 1 else h
-    return ~(h > 1.0 - tol).any(axis=1)
+    defined = ~np.any(h > 1.0 - tol, axis=1)
+    return np.asarray(defined, dtype=bool)
 
 
 def loocv(residuals: ArrayLike, leverage: ArrayLike, *, tol: float = LEVERAGE_TOL) -> NDArray:
@@ -304,9 +305,10 @@ def noise_variance_from_largest(rss: ArrayLike, n_params: ArrayLike, n: int) -> 
 def _check_sigma2(sigma2: Any) -> float:
     if isinstance(sigma2, bool) or not isinstance(sigma2, numbers.Real):
         raise TypeError(f"sigma2 must be a positive number; got {_short(sigma2)}.")
-    if not (np.isfinite(sigma2) and sigma2 > 0):
+    value = float(sigma2)
+    if not (np.isfinite(value) and value > 0):
         raise ValueError(f"sigma2 must be a finite number > 0; got {sigma2!r}.")
-    return float(sigma2)
+    return value
 
 
 def mallows_cp(
@@ -470,11 +472,11 @@ def criteria_table(
     Examples
     --------
     >>> import numpy as np
-    >>> from complexity.engine.linear import nested_least_squares
+    >>> from complexity.lstsq.nested import nested_least_squares
     >>> x = np.arange(5.0)
     >>> fit = nested_least_squares(np.column_stack([np.ones(5), x, x**2]), [1, 3, 2, 5, 4],
     ...                            n_columns_per_capacity=[1, 2, 3])
-    >>> t = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss)
+    >>> t = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss)
     >>> t["gcv"].round(4).tolist()
     [3.125, 2.0, 4.1429]
     >>> t["cp"].round(4).tolist()
@@ -486,7 +488,7 @@ def criteria_table(
     >>> y = 1.0 + 0.1 * x
     >>> fit = nested_least_squares(np.column_stack([np.ones(5), x, x**2]), y,
     ...                            n_columns_per_capacity=[1, 2, 3])
-    >>> t = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss, y=y,
+    >>> t = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss, y=y,
     ...                    condition=fit.condition)
     >>> t["exact_fit"].tolist()
     [False, True, True]

@@ -71,9 +71,7 @@ def _linear_engine() -> Any:
 def _choose_engine(engine: str, problem: Problem) -> tuple[Any, str]:
     check_option("engine", engine, ENGINES)
     linear = _linear_engine()
-    fits_exact = (
-        linear is not None and problem.ladder.linear_least_squares and linear.supports(problem)
-    )
+    fits_exact = linear is not None and linear.supports(problem)
     if engine == "exact" and not fits_exact:
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
@@ -167,7 +165,7 @@ def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.nd
     if engine_used == "exact":
         return full.leverage
     linear = _linear_engine()
-    if linear is None or not problem.ladder.linear_least_squares or not linear.supports(problem):
+    if linear is None or not linear.supports(problem):
         return None
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # the engine's own warnings were given by its run
