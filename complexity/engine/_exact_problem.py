@@ -13,7 +13,7 @@ import numpy as np
 from .._contract import Problem
 from ..lstsq.design import NestedDesign
 
-__all__ = ["design_of", "rank_message", "supports"]
+__all__ = ["design_of", "not_served", "rank_message", "supports"]
 
 
 def design_of(problem: Problem) -> NestedDesign | None:
@@ -57,6 +57,15 @@ def supports(problem: Problem) -> bool:
     False
     """
     return design_of(problem) is not None
+
+
+def not_served(problem: Problem) -> str:
+    """Why the exact engine refuses ``problem`` (its ladder has no design, or weights are given)."""
+    return (
+        f"the exact engine cannot serve {problem.ladder!r} here: it needs a ladder with a "
+        "least-squares design (PolynomialLadder, or FeatureLadder with a fixed order and the "
+        "default estimator) and no sample weights."
+    )
 
 
 def capacity_label(problem: Problem, c: int) -> str:

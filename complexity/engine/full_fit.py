@@ -25,7 +25,7 @@ from ..lstsq.coefficients import user_coefficients
 from ..lstsq.design import NestedDesign, PolynomialDesign
 from ..lstsq.nested import NestedFit, nested_least_squares
 from ._dispatch import single_blas
-from ._exact_problem import capacity_label, design_of, rank_message
+from ._exact_problem import capacity_label, design_of, not_served, rank_message
 
 __all__ = ["fit_full"]
 
@@ -147,10 +147,7 @@ def fit_full(problem: Problem) -> FullFit:
 def _fit_full(problem: Problem) -> FullFit:
     design = design_of(problem)
     if design is None:
-        raise ValueError(
-            f"the exact engine cannot serve {problem.ladder!r} here (it needs a least-squares "
-            "ladder without sample weights)."
-        )
+        raise ValueError(not_served(problem))
     X, y = problem.X, problem.y
     assert X is not None and y is not None
     n = X.shape[0]

@@ -37,16 +37,11 @@ from ._batched import (
     tail_sums,
 )
 from ._dispatch import call_with_single_blas, group_by_index, map_chunks, single_blas
-from ._exact_problem import design_of, rank_message, supports
+from ._exact_problem import design_of, not_served, rank_message, supports
 from .full_fit import fit_full
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies", "supports"]
 
-_NOT_SERVED = (
-    "the exact engine cannot serve {ladder!r} here (it needs a ladder with a least-squares design "
-    "(PolynomialLadder, or FeatureLadder with a fixed order and the default estimator) and no "
-    "sample weights)."
-)
 _GRAM_CONDITION_LIMIT = 1e6  # above this (upper bound of cond(G_c)) a resample is refit by QR
 _RSS_CANCELLATION = 1e-4  # RSS below this share of y'Cy is recomputed from residuals
 
@@ -68,7 +63,7 @@ def block_size(problem: Problem) -> int:
     """
     design = design_of(problem)
     if design is None:
-        raise ValueError(_NOT_SERVED.format(ladder=problem.ladder))
+        raise ValueError(not_served(problem))
     return chunk_size(_reference_rows(problem).shape[0], problem.n_capacities, design.n_design)
 
 
@@ -294,7 +289,7 @@ def _prepare(problem: Problem) -> tuple[Reference, dict[str, Any]]:
     """Reference factorisation and the arrays every chunk shares."""
     design = design_of(problem)
     if design is None:
-        raise ValueError(_NOT_SERVED.format(ladder=problem.ladder))
+        raise ValueError(not_served(problem))
     shared: dict[str, Any] = {}
     if not problem.simulated:
         assert problem.X is not None and problem.y is not None
