@@ -19,8 +19,14 @@ from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
 from complexity.basis import LegendreFeatures, PolynomialBasis
-from complexity.lstsq.coefficients import fit_linear, fit_polynomial, map_coefficients
-from complexity.lstsq.design import scaled_design
+from complexity.lstsq.coefficients import (
+    fit_linear,
+    fit_polynomial,
+    map_coefficients,
+    user_coefficients,
+    user_units_problem,
+)
+from complexity.lstsq.design import FeatureDesign, PolynomialDesign, scaled_design
 from complexity.lstsq.nested import nested_least_squares
 
 # ---------------------------------------------------------------- NIST StRD
@@ -340,3 +346,60 @@ def test_inputs_are_not_modified() -> None:
     fit_polynomial(Z[:, 1], y, degree=3)
     np.testing.assert_array_equal(Z, Z0)
     np.testing.assert_array_equal(y, y0)
+
+
+# ---------------------------------------------------------------- designs and the power basis
+
+
+def test_feature_design_keeps_a_constant_column_only_when_asked() -> None:
+    X = np.column_stack([np.arange(6.0), np.full(6, 2.0)])
+    lenient = FeatureDesign.from_data(X, (0, 1), (2, 3), strict=False)
+    Z = lenient.transform(X)
+    assert np.all(Z[:, 2] == 0.0)  # a zero column: the factorisation reports the rank loss
+    fit = nested_least_squares(Z, np.arange(6.0) ** 2, n_columns_per_capacity=[2, 3])
+    assert list(fit.rank_deficient) == [False, True]
+    with pytest.raises(ValueError, match="X column 1 is constant"):
+        FeatureDesign.from_data(X, (0, 1), (3,), strict=True)
+
+
+def test_feature_design_maps_back_like_statsmodels_on_raw_predictors() -> None:
+    # Reference: statsmodels OLS on [1, x1, x0] (columns entered in the order 1, 0).
+    rng = np.random.default_rng(5)
+    X = rng.normal(size=(30, 2)) * [3.0, 0.01] + [100.0, -5.0]
+    y = 2.0 + 0.5 * X[:, 1] - 0.1 * X[:, 0] + rng.normal(0, 0.1, 30)
+    design = FeatureDesign.from_data(X, (1, 0), (2, 3))
+    fit = nested_least_squares(design.transform(X), y, n_columns_per_capacity=design.n_columns)
+    got = user_coefficients(design, fit.capacity(1), X, y)
+    ref = sm.OLS(y, sm.add_constant(X[:, [1, 0]])).fit()
+    np.testing.assert_allclose(got.coef, ref.params, rtol=1e-10)
+    np.testing.assert_allclose(got.coef_sd, ref.bse, rtol=1e-10)
+    assert design.labels(["a", "b"], 3) == ["intercept", "b", "a"]
+
+
+def _float_power_error(degree: int, x: np.ndarray) -> float:
+    """Largest error of the power-basis polynomial (exact coefficients rounded once, summed in
+    float64) against the same polynomial on the Legendre basis, relative to its size."""
+    basis = PolynomialBasis(degree).fit(x)
+    coef = np.random.default_rng(degree).normal(size=degree + 1)
+    stable = basis.transform(x) @ coef
+    power = np.array([float(v) for v in basis.exact_monomials(coef).values()])
+    with np.errstate(over="ignore", invalid="ignore"):
+        naive = np.polynomial.polynomial.polyval(x, power)
+    return float(np.max(np.abs(naive - stable)) / np.max(np.abs(stable)))
+
+
+def test_power_basis_is_refused_exactly_where_float64_keeps_no_digit() -> None:
+    # The claim behind user_units_problem: where the change of basis amplifies rounding beyond
+    # 1 / eps, the power-basis polynomial summed in float64 has lost every digit; well below it
+    # it keeps several. Checked by evaluating both forms of random polynomials at the data.
+    x = np.linspace(10.0, 12.0, 60)
+    for degree in range(1, 17):  # refused from degree 10 on for this x range
+        design = PolynomialDesign(PolynomialBasis(degree).fit(x), (degree + 1,))
+        growth = design.conversion_growth(degree + 1)
+        refused = user_units_problem(design, degree + 1) is not None
+        assert refused == (growth > 1 / np.finfo(float).eps)
+        error = _float_power_error(degree, x)
+        if refused:
+            assert not error < 1e-2  # no correct digit left (or overflow)
+        elif growth < 1e10:
+            assert error < 1e-4
