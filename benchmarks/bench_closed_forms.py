@@ -61,6 +61,8 @@ import complexity as cx
 from complexity.criteria import criteria_table
 from complexity.engine import Problem
 from complexity.engine import linear as exact
+from complexity.engine._dispatch import single_blas
+from complexity.lstsq.nested import nested_least_squares
 
 N = 5_000
 DEGREE = 12
@@ -81,12 +83,12 @@ def _closed_forms(problem: Problem):
 
 def _criteria_only(problem: Problem):
     """The nested least-squares fit and the criteria table alone, as ``fit_full`` computes them."""
-    design = exact._ladder_design(problem)
-    with exact._blas_controller().limit(limits=1, user_api="blas"):  # as fit_full does
-        fit = exact.nested_least_squares(
-            design(problem.X), problem.y, n_columns_per_capacity=list(design.n_cols)
+    design = problem.ladder.nested_design(problem.X)
+    with single_blas():  # as fit_full does
+        fit = nested_least_squares(
+            design.transform(problem.X), problem.y, n_columns_per_capacity=design.n_columns
         )
-        table = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss)
+        table = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss)
     return fit, table
 
 
@@ -135,7 +137,7 @@ def _timed(fn, *args):
 
 def _accuracy(fit, points: np.ndarray, brute: np.ndarray, degrees: list[int]):
     """Residual and subset-LOOCV differences between brute force and closed forms."""
-    closed = (fit.residuals[:, points] / (1.0 - fit.leverage[:, points])).T  # (k, C)
+    closed = (fit.fitted_residuals[:, points] / (1.0 - fit.leverage[:, points])).T  # (k, C)
     b, c = brute[:, degrees], closed[:, degrees]
     res_diff = float(np.max(np.abs(c - b)) / np.max(np.abs(b)))
     loocv_b, loocv_c = np.mean(b**2, axis=0), np.mean(c**2, axis=0)

@@ -110,7 +110,7 @@ def _floor(problem, resamples):
     if QQ is None:  # large n: the engine forms the products block by block
         Q0, iu = ref.Q0, shared["iu"]
         yc = shared["yc"]
-        QQ = exact._products(Q0, yc, iu)
+        QQ = exact.products(Q0, yc, iu)
     with threadpool_limits(limits=1, user_api="blas"):
         start = time.perf_counter()
         counts @ QQ

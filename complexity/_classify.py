@@ -26,8 +26,9 @@ from numpy.typing import ArrayLike, NDArray
 from sklearn.base import clone, is_classifier
 
 from . import losses as L
+from ._labels import capacity_index
 from ._validation import _short_repr, as_seed_sequence, check_n_jobs, check_X, check_y
-from .ladders import Ladder, capacity_index
+from .ladders import Ladder
 from .plans import (
     STREAM_ESTIMATOR,
     STREAM_FULL_FIT,
@@ -276,7 +277,7 @@ def _fit_resample(spec: _Spec, r: Resample, keys: list[list[str]], ladder: Ladde
     X_tr, y_tr = d.X[r.train], d.y[r.train]
     fits = []
     for c, model in enumerate(spec.models):
-        reason = ladder.training_problem(c, X_tr)
+        reason = ladder.training_shortfall(c, X_tr)
         if reason is not None:
             fits.append(_Fit(failure=reason))
             continue

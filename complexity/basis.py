@@ -8,17 +8,16 @@ spans every polynomial of total degree <= d (interactions included).
 
 Columns are ordered by total degree (degree 0 first, then every degree-1 term, then degree 2,
 ...), so the model of degree ``d`` always uses a leading block of the columns. That nesting is
-what lets one QR factorisation serve every degree (see :mod:`complexity.engine.linear`).
+what lets one QR factorisation serve every degree (see :mod:`complexity.lstsq.nested`).
 
 Fitted coefficients on this basis can be turned back into ordinary power-basis coefficients in the
 user's own units with :meth:`PolynomialBasis.power_coefficients` (one predictor) or
 :meth:`PolynomialBasis.monomial_coefficients` (any number of predictors). The conversion matrix is
-computed in exact rational arithmetic and rounded once.
+computed in exact rational arithmetic (:mod:`complexity.lstsq._rational`) and rounded once.
 """
 
 from __future__ import annotations
 
-import functools
 import itertools
 import math
 import numbers
@@ -31,6 +30,9 @@ from numpy.typing import ArrayLike, NDArray
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_array, check_is_fitted
 
+from ._validation import _short_repr
+from .lstsq._rational import exact_matvec, monomial_matrix
+
 __all__ = ["LegendreFeatures", "PolynomialBasis", "n_total_degree_terms", "total_degree_terms"]
 
 
@@ -39,15 +41,10 @@ __all__ = ["LegendreFeatures", "PolynomialBasis", "n_total_degree_terms", "total
 # --------------------------------------------------------------------------------------------
 
 
-def _short(value: Any, limit: int = 80) -> str:
-    text = repr(value)
-    return text if len(text) <= limit else text[: limit - 3] + "..."
-
-
 def _check_degree(degree: Any, name: str = "degree") -> int:
     if isinstance(degree, bool) or not isinstance(degree, numbers.Integral):
         raise TypeError(
-            f"{name} must be a whole number >= 0 (an int); got {_short(degree)} "
+            f"{name} must be a whole number >= 0 (an int); got {_short_repr(degree)} "
             f"of type {type(degree).__name__}."
         )
     if degree < 0:
@@ -120,7 +117,7 @@ def total_degree_terms(n_features: int, degree: int) -> list[tuple[int, ...]]:
 
 def _as_2d_float(X: ArrayLike, name: str = "X") -> NDArray[np.float64]:
     if X is None or isinstance(X, (str, bytes)):
-        raise TypeError(f"{name} must be an array-like of numbers; got {_short(X)}.")
+        raise TypeError(f"{name} must be an array-like of numbers; got {_short_repr(X)}.")
     raw = np.asarray(X)
     if raw.dtype.kind == "b" or raw.dtype.kind not in "iuf":
         raise TypeError(
@@ -150,14 +147,14 @@ def _check_domain(domain: Any, n_features: int | None) -> NDArray[np.float64]:
     except (TypeError, ValueError):
         raise TypeError(
             "domain must be a (low, high) pair or an array of shape (n_features, 2); "
-            f"got {_short(domain)}."
+            f"got {_short_repr(domain)}."
         ) from None
     if arr.ndim == 1 and arr.shape == (2,):
         arr = np.tile(arr, (n_features or 1, 1))
     if arr.ndim != 2 or arr.shape[1] != 2:
         raise ValueError(
             "domain must be a (low, high) pair or an array of shape (n_features, 2); "
-            f"got {_short(domain)} (shape {arr.shape})."
+            f"got {_short_repr(domain)} (shape {arr.shape})."
         )
     if n_features is not None and arr.shape[0] != n_features:
         raise ValueError(
@@ -206,128 +203,6 @@ def _legendre_columns(
             if e:
                 col = col * vanders[j][:, e]
         out[:, c] = col
-    return out
-
-
-@functools.lru_cache(maxsize=256)
-def _legendre_to_power_exact(
-    degree: int, low: float, high: float
-) -> tuple[tuple[Fraction, ...], ...]:
-    """Exact matrix A with A[m][e] = coefficient of x**m in P_e((2x - (low+high)) / (high-low)).
-
-    ``low`` and ``high`` are floats, hence exact rationals; every step is done in
-    :class:`fractions.Fraction`, so the only rounding is the caller's final conversion to float.
-    """
-    lo, hi = Fraction(low), Fraction(high)
-    s = Fraction(2) / (hi - lo)
-    o = -(lo + hi) / (hi - lo)
-    # Legendre coefficients in t (Bonnet recurrence), leg[e][k] = coef of t**k in P_e
-    leg: list[list[Fraction]] = [[Fraction(1)] + [Fraction(0)] * degree]
-    if degree >= 1:
-        leg.append([Fraction(0), Fraction(1)] + [Fraction(0)] * (degree - 1))
-    for e in range(1, degree):
-        nxt = [Fraction(0)] * (degree + 1)
-        for k in range(degree):
-            nxt[k + 1] += Fraction(2 * e + 1, e + 1) * leg[e][k]
-        for k in range(degree + 1):
-            nxt[k] -= Fraction(e, e + 1) * leg[e - 1][k]
-        leg.append(nxt)
-    # expansion of t**k = (s x + o)**k: pw[k][m] = C(k, m) s**m o**(k-m)
-    s_pows = [s**m for m in range(degree + 1)]
-    o_pows = [o**m for m in range(degree + 1)]
-    A = [[Fraction(0)] * (degree + 1) for _ in range(degree + 1)]
-    for e in range(degree + 1):
-        for k in range(e + 1):
-            c = leg[e][k]
-            if c == 0:
-                continue
-            for m in range(k + 1):
-                A[m][e] += c * math.comb(k, m) * s_pows[m] * o_pows[k - m]
-    return tuple(tuple(row) for row in A)
-
-
-def _monomial_matrix_exact(
-    terms: list[tuple[int, ...]], domain: NDArray[np.float64], degree: int
-) -> list[list[Fraction]]:
-    """Exact matrix M with monomial coefficients (in original units) = M @ basis coefficients.
-
-    Rows and columns are both indexed by ``terms``: column ``c`` is the product Legendre term
-    ``terms[c]``, row ``r`` the monomial with exponents ``terms[r]``. ``terms`` is a leading run of
-    :func:`total_degree_terms` (graded), so M is the leading block of the matrix of all terms of
-    ``degree`` (a Legendre term only involves monomials of lower or equal degree), which is built
-    once per domain and degree and kept.
-    """
-    full = _all_terms_matrix(
-        len(terms[0]) if terms else 1,
-        tuple((float(lo), float(hi)) for lo, hi in domain),
-        degree,
-    )
-    k = len(terms)
-    if list(terms) != total_degree_terms(len(terms[0]) if terms else 1, degree)[:k]:
-        raise ValueError("terms must be a leading run of total_degree_terms")  # internal use
-    return [list(row[:k]) for row in full[:k]]
-
-
-@functools.lru_cache(maxsize=64)
-def _all_terms_matrix(
-    n_features: int, domain: tuple[tuple[float, float], ...], degree: int
-) -> tuple[tuple[Fraction, ...], ...]:
-    terms = total_degree_terms(n_features, degree)
-    per_dim = [_legendre_to_power_exact(degree, lo, hi) for lo, hi in domain]
-    index = {t: i for i, t in enumerate(terms)}
-    size = len(terms)
-    M = [[Fraction(0)] * size for _ in range(size)]
-    for c, exps in enumerate(terms):
-        for m in itertools.product(*(range(e + 1) for e in exps)):
-            value = Fraction(1)
-            for j, (mj, ej) in enumerate(zip(m, exps)):
-                value *= per_dim[j][mj][ej]
-                if value == 0:
-                    break
-            if value != 0:
-                M[index[m]][c] = value
-    return tuple(tuple(row) for row in M)
-
-
-def _exact_matvec(
-    M: list[list[Fraction]], parts: tuple[NDArray[np.float64], ...]
-) -> list[Fraction]:
-    """M @ (sum of the float vectors ``parts``), every product and sum exact."""
-    v = [sum((Fraction(float(p[j])) for p in parts), Fraction(0)) for j in range(len(parts[0]))]
-    return [sum((row[j] * v[j] for j in range(len(v)) if row[j]), Fraction(0)) for row in M]
-
-
-def _exact_residuals(
-    X: NDArray[np.float64],
-    y: NDArray[np.float64],
-    monomials: dict[tuple[int, ...], Fraction],
-) -> NDArray[np.float64]:
-    """``y - sum_t a_t x**t`` computed exactly in rational arithmetic, each entry rounded once.
-
-    Also used by :mod:`complexity.engine.linear`. The cost is
-    O(n_samples x n_terms) big-rational operations, so it is meant for reporting one fit, not for
-    sweeps.
-    """
-    Xa = np.asarray(X, dtype=np.float64)
-    if Xa.ndim == 1:
-        Xa = Xa[:, None]
-    top = max((max(t) for t in monomials), default=0)
-    out = np.empty(Xa.shape[0])
-    for i, row in enumerate(Xa):
-        pows = [[Fraction(1)] for _ in row]
-        for j, v in enumerate(row):
-            fv = Fraction(float(v))
-            for _ in range(top):
-                pows[j].append(pows[j][-1] * fv)
-        total = Fraction(float(y[i]))
-        for t, a in monomials.items():
-            if a:
-                term = a
-                for j, e in enumerate(t):
-                    if e:
-                        term *= pows[j][e]
-                total -= term
-        out[i] = float(total)
     return out
 
 
@@ -499,6 +374,11 @@ class PolynomialBasis:
             )
         return n
 
+    def _exact_matrix(self, k: int) -> list[list[Fraction]]:
+        """The exact change of basis for the first ``k`` columns (kept per terms and domain)."""
+        domain = tuple((float(lo), float(hi)) for lo, hi in self.domain_)
+        return monomial_matrix(tuple(self.terms_[:k]), domain)
+
     def monomial_matrix(self, n_columns: int | None = None) -> NDArray[np.float64]:
         """Matrix turning basis coefficients into monomial coefficients in original units.
 
@@ -524,7 +404,7 @@ class PolynomialBasis:
                [ 0.,  1.]])
         """
         k = self._coef_length(len(self.terms_) if n_columns is None else int(n_columns))
-        M = _monomial_matrix_exact(self.terms_[:k], self.domain_, self.degree)
+        M = self._exact_matrix(k)
         return np.array([[float(v) for v in row] for row in M], dtype=np.float64)
 
     def exact_monomials(self, *coef_parts: ArrayLike) -> dict[tuple[int, ...], Fraction]:
@@ -560,8 +440,7 @@ class PolynomialBasis:
             )
         if not all(np.isfinite(p).all() for p in parts):
             raise ValueError("coefficients contain NaN or infinite values.")
-        M = _monomial_matrix_exact(self.terms_[:k], self.domain_, self.degree)
-        return dict(zip(self.terms_[:k], _exact_matvec(M, parts)))
+        return dict(zip(self.terms_[:k], exact_matvec(self._exact_matrix(k), parts)))
 
     def monomial_coefficients(self, coef: ArrayLike) -> dict[tuple[int, ...], float]:
         """Coefficients of monomials in original units, keyed by exponent tuple.

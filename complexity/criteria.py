@@ -32,6 +32,8 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike, NDArray
 
+from ._validation import _short_repr
+
 __all__ = [
     "aic",
     "aicc",
@@ -53,14 +55,9 @@ LEVERAGE_TOL = 1e-10
 _EPS = float(np.finfo(np.float64).eps)
 
 
-def _short(value: Any, limit: int = 80) -> str:
-    text = repr(value)
-    return text if len(text) <= limit else text[: limit - 3] + "..."
-
-
 def _check_n(n: Any) -> int:
     if isinstance(n, bool) or not isinstance(n, numbers.Integral):
-        raise TypeError(f"n must be an int (the number of observations); got {_short(n)}.")
+        raise TypeError(f"n must be an int (the number of observations); got {_short_repr(n)}.")
     if n < 1:
         raise ValueError(f"n must be >= 1; got {int(n)}.")
     return int(n)
@@ -71,7 +68,7 @@ def _vector(value: ArrayLike, name: str) -> NDArray[np.float64]:
     if arr.ndim != 1:
         raise ValueError(f"{name} must be 1-D (one value per capacity); got shape {arr.shape}.")
     if np.isnan(arr).any():
-        raise ValueError(f"{name} contains NaN; got {_short(arr)}.")
+        raise ValueError(f"{name} contains NaN; got {_short_repr(arr)}.")
     return arr
 
 
@@ -81,9 +78,9 @@ def _rss_p(rss: ArrayLike, n_params: ArrayLike, n: int) -> tuple[NDArray, NDArra
     if r.shape != p.shape:
         raise ValueError(f"rss and n_params must have the same length; got {r.size} and {p.size}.")
     if (r < 0).any():
-        raise ValueError(f"rss must be >= 0; got {_short(r)}.")
+        raise ValueError(f"rss must be >= 0; got {_short_repr(r)}.")
     if (p < 0).any() or (p > n).any():
-        raise ValueError(f"n_params must lie in 0..n={n}; got {_short(p)}.")
+        raise ValueError(f"n_params must lie in 0..n={n}; got {_short_repr(p)}.")
     return r, p
 
 
@@ -110,7 +107,7 @@ def gaussian_loglik(rss: ArrayLike, n: int) -> NDArray[np.float64]:
     n = _check_n(n)
     r = _vector(rss, "rss")
     if (r < 0).any():
-        raise ValueError(f"rss must be >= 0; got {_short(r)}.")
+        raise ValueError(f"rss must be >= 0; got {_short_repr(r)}.")
     with np.errstate(divide="ignore"):
         return -(n / 2.0) * (np.log(2 * np.pi) + np.log(r / n) + 1.0)
 
@@ -222,7 +219,7 @@ def _leverage_residuals(residuals: ArrayLike, leverage: ArrayLike) -> tuple[NDAr
     if np.isnan(e).any() or np.isnan(h).any():
         raise ValueError("residuals or leverage contain NaN.")
     if (h < -1e-12).any() or (h > 1 + 1e-12).any():
-        raise ValueError(f"leverage values must lie in [0, 1]; got {_short(h)}.")
+        raise ValueError(f"leverage values must lie in [0, 1]; got {_short_repr(h)}.")
     return e, h
 
 
@@ -236,7 +233,8 @@ def loocv_defined(leverage: ArrayLike, *, tol: float = LEVERAGE_TOL) -> NDArray[
     """
     h = np.asarray(leverage, dtype=np.float64)
     h = h[None, :] if h.ndim == 1 else h
-    return ~(h > 1.0 - tol).any(axis=1)
+    defined = ~np.any(h > 1.0 - tol, axis=1)
+    return np.asarray(defined, dtype=bool)
 
 
 def loocv(residuals: ArrayLike, leverage: ArrayLike, *, tol: float = LEVERAGE_TOL) -> NDArray:
@@ -303,10 +301,11 @@ def noise_variance_from_largest(rss: ArrayLike, n_params: ArrayLike, n: int) -> 
 
 def _check_sigma2(sigma2: Any) -> float:
     if isinstance(sigma2, bool) or not isinstance(sigma2, numbers.Real):
-        raise TypeError(f"sigma2 must be a positive number; got {_short(sigma2)}.")
-    if not (np.isfinite(sigma2) and sigma2 > 0):
+        raise TypeError(f"sigma2 must be a positive number; got {_short_repr(sigma2)}.")
+    value = float(sigma2)
+    if not (np.isfinite(value) and value > 0):
         raise ValueError(f"sigma2 must be a finite number > 0; got {sigma2!r}.")
-    return float(sigma2)
+    return value
 
 
 def mallows_cp(
@@ -364,7 +363,7 @@ def _condition(condition: ArrayLike | None, size: int) -> NDArray[np.float64]:
     if not (np.isfinite(kappa) & (kappa >= 1.0)).all():
         raise ValueError(
             "condition must hold finite 2-norm condition numbers >= 1 (drop rank-deficient "
-            f"capacities first); got {_short(kappa)}."
+            f"capacities first); got {_short_repr(kappa)}."
         )
     return kappa
 
@@ -413,7 +412,7 @@ def rounding_level_rss(y: ArrayLike, condition: ArrayLike | None = None) -> NDAr
     if ya.ndim != 1 or ya.size == 0:
         raise ValueError(f"y must be a non-empty 1-D array of responses; got shape {ya.shape}.")
     if not np.isfinite(ya).all():
-        raise ValueError(f"y must be finite; got {_short(ya)}.")
+        raise ValueError(f"y must be finite; got {_short_repr(ya)}.")
     size = 1 if condition is None else np.atleast_1d(np.asarray(condition)).size
     kappa = _condition(condition, size)
     scale = float(np.sum(ya**2))
@@ -470,11 +469,11 @@ def criteria_table(
     Examples
     --------
     >>> import numpy as np
-    >>> from complexity.engine.linear import nested_least_squares
+    >>> from complexity.lstsq.nested import nested_least_squares
     >>> x = np.arange(5.0)
     >>> fit = nested_least_squares(np.column_stack([np.ones(5), x, x**2]), [1, 3, 2, 5, 4],
     ...                            n_columns_per_capacity=[1, 2, 3])
-    >>> t = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss)
+    >>> t = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss)
     >>> t["gcv"].round(4).tolist()
     [3.125, 2.0, 4.1429]
     >>> t["cp"].round(4).tolist()
@@ -486,7 +485,7 @@ def criteria_table(
     >>> y = 1.0 + 0.1 * x
     >>> fit = nested_least_squares(np.column_stack([np.ones(5), x, x**2]), y,
     ...                            n_columns_per_capacity=[1, 2, 3])
-    >>> t = criteria_table(fit.residuals, fit.leverage, fit.rank, rss=fit.rss, y=y,
+    >>> t = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss, y=y,
     ...                    condition=fit.condition)
     >>> t["exact_fit"].tolist()
     [False, True, True]

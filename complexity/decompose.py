@@ -49,8 +49,8 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
+from ._labels import capacity_index
 from .accumulate import PointAccumulator
-from .ladders import capacity_index
 from .plans import SplitLayout
 
 __all__ = [

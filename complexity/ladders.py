@@ -14,14 +14,16 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
-from sklearn.base import BaseEstimator, TransformerMixin, clone
+from sklearn.base import clone
 from sklearn.dummy import DummyRegressor
 from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 
 from ._params import ParamsMixin
+from ._ranking import RANKINGS, FirstColumns, callable_name, ranking
 from ._validation import _short_repr, check_option, repr_from_description, row_groups
-from .basis import LegendreFeatures, n_total_degree_terms
+from .basis import LegendreFeatures, PolynomialBasis, n_total_degree_terms
+from .lstsq.design import FeatureDesign, NestedDesign, PolynomialDesign
 
 __all__ = ["FeatureLadder", "Ladder", "ParamLadder", "PolynomialLadder"]
 
@@ -34,9 +36,6 @@ class Ladder(ParamsMixin):
     """
 
     capacity_name: str = "capacity"
-    #: True when every model of the ladder is ordinary least squares on nested column sets, so
-    #: the exact engine and the closed-form criteria apply.
-    linear_least_squares: bool = False
 
     @property
     def capacities(self) -> tuple[Any, ...]:
@@ -57,8 +56,20 @@ class Ladder(ParamsMixin):
         """Return one unfitted estimator per capacity, with any data-derived settings fixed from X."""
         raise NotImplementedError
 
-    def training_problem(self, index: int, X_train: NDArray[np.float64]) -> str | None:
+    def training_shortfall(self, index: int, X_train: NDArray[np.float64]) -> str | None:
         """Return why capacity ``index`` cannot be fitted on ``X_train``, or None if it can."""
+        return None
+
+    def nested_design(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> NestedDesign | None:
+        """The least-squares design every capacity shares, fixed from ``X``; None if there is none.
+
+        A ladder whose every model is ordinary least squares on a leading block of one design's
+        columns returns that design (:class:`~complexity.lstsq.design.NestedDesign`), and the
+        exact engine and the closed-form criteria serve it; None means the generic engine fits
+        the models :meth:`build` returns.
+        """
         return None
 
     def describe(self) -> dict[str, Any]:
@@ -100,6 +111,15 @@ def _distinct_rows(X: NDArray[np.float64]) -> int:
     return int(row_groups(X)[1].size)
 
 
+def _highest_degree_text(n_features: int, n_rows: int, distinct: int) -> str:
+    """Plain words for the highest total degree ``distinct`` points can determine."""
+    best = 0
+    while n_total_degree_terms(n_features, best + 1) <= distinct:
+        best += 1
+    what = "x values" if n_features == 1 else "rows"
+    return f"Degrees up to {best} can be fitted to {n_rows} rows with {distinct} distinct {what}."
+
+
 class PolynomialLadder(Ladder):
     """Polynomial degree as the capacity, on a numerically stable basis.
 
@@ -124,7 +144,6 @@ class PolynomialLadder(Ladder):
     """
 
     capacity_name = "degree"
-    linear_least_squares = True
 
     def __init__(
         self, degrees: Iterable[int] = range(0, 13), domain: tuple[float, float] | None = None
@@ -173,11 +192,10 @@ class PolynomialLadder(Ladder):
         top = max(self.degrees)
         need = n_total_degree_terms(X.shape[1], top)
         if need > distinct:
-            usable = [d for d in self.degrees if n_total_degree_terms(X.shape[1], d) <= distinct]
             raise ValueError(
                 f"degrees reach {top}, which needs {need} coefficients, but X has only {distinct} "
-                f"distinct point(s). Use degrees up to {max(usable) if usable else 0} "
-                f"(e.g. degrees=range(0, {(max(usable) if usable else 0) + 1}))."
+                f"distinct {'x values' if X.shape[1] == 1 else 'rows'}. "
+                + _highest_degree_text(X.shape[1], X.shape[0], distinct)
             )
         warnings = []
         if need == distinct:
@@ -202,7 +220,22 @@ class PolynomialLadder(Ladder):
             for d in self.degrees
         ]
 
-    def training_problem(self, index: int, X_train: NDArray[np.float64]) -> str | None:
+    def nested_design(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> PolynomialDesign:
+        """The graded Legendre basis on the domain :meth:`build` uses, one column block per degree.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> import complexity as cx
+        >>> cx.PolynomialLadder([0, 2]).nested_design(np.linspace(0, 1, 5)[:, None]).n_columns
+        (1, 3)
+        """
+        basis = PolynomialBasis(max(self.degrees), self._domain_for(X)).fit(X)
+        return PolynomialDesign(basis, tuple(basis.n_columns(d) for d in self.degrees))
+
+    def training_shortfall(self, index: int, X_train: NDArray[np.float64]) -> str | None:
         need = n_total_degree_terms(X_train.shape[1], self.degrees[index])
         have = _distinct_rows(X_train)
         if have < need:
@@ -214,136 +247,6 @@ class PolynomialLadder(Ladder):
 
     def describe(self) -> dict[str, Any]:
         return {"kind": "polynomial", "degrees": list(self.degrees), "domain": self.domain}
-
-
-#: the built-in rankings a FeatureLadder can recompute inside every training set
-RANKINGS = ("correlation", "f-test")
-
-
-def _rank_correlation(X: NDArray[np.float64], y: NDArray[np.float64]) -> NDArray[np.intp]:
-    """Column positions by decreasing absolute Pearson correlation with y (ties: lower first).
-
-    A constant column (or a constant y) has no correlation; it ranks after every other column.
-    """
-    Xc = X - X.mean(axis=0)
-    yc = y - y.mean()
-    scale = np.sqrt(np.einsum("ij,ij->j", Xc, Xc)) * np.sqrt(yc @ yc)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        score = np.abs(Xc.T @ yc) / scale
-    score[~np.isfinite(score)] = -1.0
-    return np.argsort(-score, kind="stable")
-
-
-def _rank_forward_f(
-    X: NDArray[np.float64], y: NDArray[np.float64], n_steps: int
-) -> NDArray[np.intp]:
-    """Forward selection by the partial F statistic (F-to-enter), with an intercept.
-
-    At each step the column with the largest partial F given the columns already chosen enters.
-    For a fixed current model that is the column whose entry reduces the residual sum of squares
-    most, i.e. the largest ``(q_j . r)^2 / (q_j . q_j)`` with ``q_j`` the column made orthogonal to
-    the chosen ones (and the intercept) and ``r`` the current residual. The first step is the
-    univariate F test, which ranks like the absolute correlation. Columns that are (numerically)
-    in the span of the chosen ones cannot enter; they follow, in column order, once no column can.
-    """
-    p = X.shape[1]
-    R = X - X.mean(axis=0)
-    r = y - y.mean()
-    size0 = np.einsum("ij,ij->j", R, R)
-    free = np.ones(p, dtype=bool)
-    chosen: list[int] = []
-    for _ in range(min(n_steps, p)):
-        den = np.einsum("ij,ij->j", R, R)
-        usable = free & (den > 1e-10 * np.maximum(size0, np.finfo(float).tiny))
-        if not usable.any():
-            break
-        with np.errstate(divide="ignore", invalid="ignore"):
-            score = np.where(usable, (R.T @ r) ** 2 / den, -1.0)
-        j = int(np.argmax(score))  # first position on ties
-        q = R[:, j] / np.sqrt(den[j])
-        r = r - q * (q @ r)
-        R = R - np.outer(q, q @ R)
-        free[j] = False
-        chosen.append(j)
-    rest = [j for j in range(p) if free[j]]
-    return np.array(chosen + rest, dtype=np.intp)
-
-
-def _callable_name(func: Any) -> str:
-    return getattr(func, "__qualname__", None) or getattr(func, "__name__", None) or repr(func)
-
-
-def _check_ranking(func: Any, ranking: Any, p: int, n_needed: int) -> NDArray[np.intp]:
-    """Validate what a user's ranking function returned."""
-    name = _callable_name(func)
-    arr = np.asarray(ranking)
-    if arr.ndim != 1 or arr.dtype.kind not in "iu":
-        raise TypeError(
-            f"order={name} must return a 1-D sequence of column positions (ints), best first; "
-            f"got {_short_repr(ranking)}."
-        )
-    if arr.size < n_needed:
-        raise ValueError(
-            f"order={name} returned {arr.size} column position(s), but {n_needed} are needed; "
-            "return at least as many positions as the largest count (e.g. a full ranking)."
-        )
-    if arr.size and (arr.min() < 0 or arr.max() >= p):
-        raise ValueError(
-            f"order={name} returned column position(s) outside 0..{p - 1}: "
-            f"{_short_repr(arr.tolist())}."
-        )
-    if np.unique(arr).size != arr.size:
-        raise ValueError(
-            f"order={name} returned a column more than once: {_short_repr(arr.tolist())}."
-        )
-    return arr.astype(np.intp)
-
-
-def _ranking(
-    order: Any, X: NDArray[np.float64], y: NDArray[np.float64], n_needed: int
-) -> NDArray[np.intp]:
-    """Column positions, best first, by the ranked ``order`` computed on ``(X, y)`` only.
-
-    At least ``n_needed`` positions are returned.
-    """
-    if isinstance(order, str):
-        if order == "correlation":
-            return _rank_correlation(X, y)
-        return _rank_forward_f(X, y, n_needed)
-    return _check_ranking(order, order(X, y), X.shape[1], n_needed)
-
-
-class _FirstColumns(TransformerMixin, BaseEstimator):
-    """Keep ``k`` columns of X: the first k of a fixed order, or the best k by a ranking.
-
-    ``order`` is None (column order), a list of column positions, or a ranked order
-    (``"correlation"``, ``"f-test"`` or a callable ``(X, y) -> positions``); a ranked order is
-    computed in :meth:`fit`, on the training data it is given only, so inside a resampling loop
-    it is recomputed for every training set.
-    """
-
-    def __init__(self, k: int = 1, order: Any = None) -> None:
-        self.k = k
-        self.order = order
-
-    def fit(self, X: Any, y: Any = None) -> _FirstColumns:
-        X = np.asarray(X, dtype=np.float64)
-        if self.order is None:
-            order = np.arange(X.shape[1])
-        elif isinstance(self.order, str) or callable(self.order):
-            if y is None:
-                raise ValueError(
-                    f"order={self.order!r} ranks columns by their relation to y; y is None."
-                )
-            order = _ranking(self.order, X, np.asarray(y, dtype=np.float64), self.k)
-        else:
-            order = np.asarray(self.order)
-        self.columns_ = order[: self.k].astype(np.intp)
-        self.n_features_in_ = X.shape[1]
-        return self
-
-    def transform(self, X: Any) -> NDArray[np.float64]:
-        return np.asarray(X)[:, self.columns_]
 
 
 class FeatureLadder(Ladder):
@@ -387,8 +290,9 @@ class FeatureLadder(Ladder):
     >>> import complexity as cx
     >>> cx.FeatureLadder(counts=[1, 2, 3]).capacities
     (1, 2, 3)
-    >>> cx.FeatureLadder(counts=[1, 2], order="correlation").linear_least_squares
-    False
+    >>> X = np.arange(12.0).reshape(6, 2) ** [1, 2]
+    >>> cx.FeatureLadder(counts=[1, 2], order="correlation").nested_design(X) is None
+    True
 
     Ranked inside every training set, with how often each predictor made the first k:
 
@@ -419,16 +323,13 @@ class FeatureLadder(Ladder):
                 f"or a callable (X_train, y_train) -> positions; got {_short_repr(order)}."
             )
         else:
-            order = list(order)
+            order = list(order)  # type: ignore[assignment]  # positions or names, checked later
         self.order = order
         if estimator is not None and not hasattr(estimator, "fit"):
             raise TypeError(
                 f"estimator must be a scikit-learn regressor; got {_short_repr(estimator)}."
             )
         self.estimator = estimator
-        # The exact engine serves least squares on one fixed column order; a ranked order changes
-        # with every training set, which the generic engine handles by ranking inside each fit.
-        self.linear_least_squares = estimator is None and not self.ranked
 
     @property
     def ranked(self) -> bool:
@@ -452,6 +353,7 @@ class FeatureLadder(Ladder):
         if self.order is None:
             return list(range(n_columns))
         positions = []
+        assert not callable(self.order) and not isinstance(self.order, str)  # not ranked
         for item in self.order:
             if isinstance(item, str):
                 if feature_names is None or item not in feature_names:
@@ -461,7 +363,7 @@ class FeatureLadder(Ladder):
                     )
                 positions.append(feature_names.index(item))
             elif isinstance(item, numbers.Integral) and not isinstance(item, bool):
-                if not 0 <= item < n_columns:
+                if not 0 <= int(item) < n_columns:
                     raise ValueError(
                         f"order contains column position {item}; X has columns 0..{n_columns - 1}."
                     )
@@ -495,7 +397,7 @@ class FeatureLadder(Ladder):
         if k == 0:
             return DummyRegressor(strategy="mean")
         final = LinearRegression() if self.estimator is None else clone(self.estimator)
-        return Pipeline([("columns", _FirstColumns(k=k, order=order)), ("model", final)])
+        return Pipeline([("columns", FirstColumns(k=k, order=order)), ("model", final)])
 
     def build(
         self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
@@ -503,7 +405,30 @@ class FeatureLadder(Ladder):
         order = self.order if self.ranked else self.column_order(X.shape[1], feature_names)
         return [self._model(k, order) for k in self.counts]
 
-    def training_problem(self, index: int, X_train: NDArray[np.float64]) -> str | None:
+    def nested_design(
+        self, X: NDArray[np.float64], feature_names: tuple[str, ...] | None = None
+    ) -> FeatureDesign | None:
+        """Centred and scaled predictors in their fixed order; None for a ranked order or an
+        estimator of the user's (the exact engine serves least squares on one fixed order; a
+        ranked order changes with every training set and is fitted by the generic engine).
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> import complexity as cx
+        >>> X = np.arange(12.0).reshape(6, 2) ** [1, 2]
+        >>> cx.FeatureLadder([0, 1, 2], order=[1, 0]).nested_design(X).columns
+        (1, 0)
+        """
+        if self.estimator is not None or self.ranked:
+            return None
+        order = self.column_order(X.shape[1], feature_names)
+        columns = tuple(order[: max(self.counts)])
+        n_columns = tuple(k + 1 for k in self.counts)
+        # a column without spread stays zero in the design: reported as rank loss, not refused
+        return FeatureDesign.from_data(X, columns, n_columns, fit_intercept=True, strict=False)
+
+    def training_shortfall(self, index: int, X_train: NDArray[np.float64]) -> str | None:
         """Least squares on k predictors and an intercept needs k + 1 distinct training rows."""
         k = self.counts[index]
         if self.estimator is None and k > 0:
@@ -547,14 +472,14 @@ class FeatureLadder(Ladder):
             for r in resamples:
                 X_tr, y_tr, _ = problem.training_set(r)
                 rank = np.zeros(p, dtype=np.intp) + p  # position in the ranking; p = not ranked
-                order = _ranking(self.order, X_tr, y_tr, top)
+                order = ranking(self.order, X_tr, y_tr, top)
                 rank[order] = np.arange(order.size)
                 hits += rank[None, :] < np.array(self.counts)[:, None]
             shares = hits / max(len(resamples), 1)
         else:
-            order = self.column_order(p, feature_names)
+            fixed = self.column_order(p, feature_names)
             for i, k in enumerate(self.counts):
-                hits[i, order[:k]] = 1.0
+                hits[i, fixed[:k]] = 1.0
             shares = hits
         return pd.DataFrame(
             shares, index=pd.Index(list(self.counts), name=self.capacity_name), columns=labels
@@ -563,7 +488,7 @@ class FeatureLadder(Ladder):
     def describe(self) -> dict[str, Any]:
         order: Any = self.order
         if callable(order):
-            order = f"callable {_callable_name(order)}"
+            order = f"callable {callable_name(order)}"
         return {
             "kind": "features",
             "counts": list(self.counts),
@@ -659,26 +584,3 @@ class ParamLadder(Ladder):
             "values": list(self.values),
             "simpler": self.simpler,
         }
-
-
-def capacity_index(values: Iterable[Any], name: str | None = None) -> pd.Index:
-    """A pandas Index of capacity values that keeps them as given.
-
-    Numbers stay numbers; a ladder holding ``None`` (e.g. ``max_depth=None``) or mixed kinds
-    gets an object index, so ``None`` is not turned into NaN.
-
-    Examples
-    --------
-    >>> capacity_index([1, 3, None], "max_depth").tolist()
-    [1, 3, None]
-    """
-    values = list(values)
-    plain = all(isinstance(v, numbers.Real) and not isinstance(v, bool) for v in values)
-    return pd.Index(values, name=name, dtype=None if plain else object)
-
-
-def capacity_label(ladder: Ladder) -> str:
-    """A plain-words label for the capacity axis."""
-    return {"degree": "polynomial degree", "n_features": "number of predictors"}.get(
-        ladder.capacity_name, ladder.capacity_name
-    )

@@ -655,7 +655,7 @@ def _draw_fits(
         curves = []
         for _ in range(band_resamples):
             rows = rng.integers(0, Xa.shape[0], Xa.shape[0])
-            if ladder.training_problem(pos, Xa[rows]) is not None:
+            if ladder.training_shortfall(pos, Xa[rows]) is not None:
                 continue
             Xb = Xfit.iloc[rows] if isinstance(Xfit, pd.DataFrame) else Xa[rows]
             try:

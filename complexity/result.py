@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .ladders import capacity_index
+from ._labels import capacity_index
 from .noise import NoiseEstimate
 
 __all__ = ["SweepResult", "load_result"]

@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
-from .ladders import capacity_index
+from ._labels import capacity_index
 
 __all__ = ["CRITERIA", "RULES", "choose", "choose_min", "choose_one_se", "rule_table", "stability"]
 

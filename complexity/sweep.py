@@ -46,7 +46,7 @@ ENGINES = ("auto", "exact", "generic")
 
 def _fits_exact(problem: Problem) -> bool:
     """Whether the exact least-squares engine can run this problem."""
-    return bool(problem.ladder.linear_least_squares) and linear_engine.supports(problem)
+    return linear_engine.supports(problem)
 
 
 def _choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:

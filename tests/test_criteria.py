@@ -31,7 +31,8 @@ from complexity.criteria import (
     rounding_level_rss,
 )
 from complexity.engine import Problem
-from complexity.engine.linear import fit_full, nested_least_squares
+from complexity.engine.linear import fit_full
+from complexity.lstsq.nested import nested_least_squares
 
 try:
     import statsmodels.api as sm
@@ -54,17 +55,19 @@ def test_methods_section5_worked_check() -> None:
     # METHODS.md section 5: straight line, beta = (1.4, 0.8), RSS = 3.6,
     # h = (0.6, 0.3, 0.2, 0.3, 0.6), PRESS = 9.057398, LOOCV = 1.811480, GCV = 2.0.
     fit = _toy_fit()
-    np.testing.assert_allclose(fit.residuals[1], [-0.4, 0.8, -1.0, 1.2, -0.6], atol=1e-13)
+    np.testing.assert_allclose(fit.fitted_residuals[1], [-0.4, 0.8, -1.0, 1.2, -0.6], atol=1e-13)
     assert fit.rss[1] == pytest.approx(3.6, rel=1e-13)
     np.testing.assert_allclose(fit.leverage[1], [0.6, 0.3, 0.2, 0.3, 0.6], atol=1e-13)
-    cv = loocv(fit.residuals[1], fit.leverage[1])[0]
+    cv = loocv(fit.fitted_residuals[1], fit.leverage[1])[0]
     assert 5 * cv == pytest.approx(9.057398, abs=5e-7)
     assert cv == pytest.approx(1.811480, abs=5e-7)
     assert gcv([fit.rss[1]], [2], 5)[0] == pytest.approx(2.0, rel=1e-13)
     # mean-only model: LOO residual = (y_i - ybar) n / (n - 1), and PRESS equals GCV's form
     loo0 = (Y_TOY - Y_TOY.mean()) * 5 / 4
-    assert loocv(fit.residuals[0], fit.leverage[0])[0] == pytest.approx(np.mean(loo0**2))
-    assert loocv(fit.residuals[0], fit.leverage[0])[0] == pytest.approx(gcv([10.0], [1], 5)[0])
+    assert loocv(fit.fitted_residuals[0], fit.leverage[0])[0] == pytest.approx(np.mean(loo0**2))
+    assert loocv(fit.fitted_residuals[0], fit.leverage[0])[0] == pytest.approx(
+        gcv([10.0], [1], 5)[0]
+    )
 
 
 def test_methods_section6_worked_check() -> None:
@@ -98,7 +101,7 @@ def _problem(seed: int, n: int = 25, degree: int = 6):
 def test_closed_form_loocv_equals_brute_force_refits() -> None:
     # Allen (1974): PRESS from one fit equals leaving each point out and refitting.
     _x, y, Z, fit = _problem(0)
-    got = loocv(fit.residuals, fit.leverage)
+    got = loocv(fit.fitted_residuals, fit.leverage)
     n = len(y)
     for i, p in enumerate(fit.n_columns):
         errs = []
@@ -113,7 +116,7 @@ def test_closed_form_loocv_equals_brute_force_refits() -> None:
 def test_press_matches_statsmodels_influence() -> None:
     # Reference: statsmodels OLSInfluence.ess_press (sum of squared PRESS residuals).
     _x, y, Z, fit = _problem(1)
-    got = loocv(fit.residuals, fit.leverage) * len(y)
+    got = loocv(fit.fitted_residuals, fit.leverage) * len(y)
     for i, p in enumerate(fit.n_columns):
         ref = sm.OLS(y, Z[:, :p]).fit().get_influence().ess_press
         assert got[i] == pytest.approx(ref, rel=1e-9)
@@ -187,7 +190,7 @@ def test_interpolating_capacity_is_flagged_not_nan() -> None:
     fit = nested_least_squares(Z, y, n_columns_per_capacity=[1, 2, 3, 4])
     defined = loocv_defined(fit.leverage)
     assert list(defined) == [True, True, True, False]
-    cv = loocv(fit.residuals, fit.leverage)
+    cv = loocv(fit.fitted_residuals, fit.leverage)
     assert np.isinf(cv[3]) and np.isfinite(cv[:3]).all()
     assert np.isinf(aicc(fit.rss, fit.rank, 4)[1:]).all()
     assert np.isfinite(aicc(fit.rss, fit.rank, 4)[0])
@@ -198,7 +201,9 @@ def test_interpolating_capacity_is_flagged_not_nan() -> None:
 def test_criteria_table() -> None:
     _x, y, _Z, fit = _problem(6)
     caps = list(range(len(fit.n_columns)))
-    table = criteria_table(fit.residuals, fit.leverage, fit.rank, capacities=caps, rss=fit.rss)
+    table = criteria_table(
+        fit.fitted_residuals, fit.leverage, fit.rank, capacities=caps, rss=fit.rss
+    )
     for col in ("loocv", "gcv", "aic", "aicc", "bic", "cp", "fixed_design_variance"):
         assert col in table.columns
     # no y: no exact-fit guard
@@ -206,12 +211,12 @@ def test_criteria_table() -> None:
     assert table.index.name == "capacity" and list(table.index) == caps
     n = len(y)
     np.testing.assert_allclose(table["aic"], aic(fit.rss, fit.rank, n))
-    np.testing.assert_allclose(table["loocv"], loocv(fit.residuals, fit.leverage))
+    np.testing.assert_allclose(table["loocv"], loocv(fit.fitted_residuals, fit.leverage))
     s2 = fit.rss[-1] / (n - fit.rank[-1])
     assert table.attrs["sigma2"] == pytest.approx(s2)
     np.testing.assert_allclose(table["fixed_design_variance"], s2 * fit.rank / n)
     # a given noise variance overrides the largest model's
-    other = criteria_table(fit.residuals, fit.leverage, fit.rank, sigma2=2.0)
+    other = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, sigma2=2.0)
     np.testing.assert_allclose(other["cp"], fit.rss / 2.0 - n + 2 * fit.rank, rtol=1e-12)
 
 
@@ -293,7 +298,7 @@ def test_rounding_level_rss_formula_and_bad_input() -> None:
 
 def test_criteria_table_guard_bad_input() -> None:
     fit = _toy_fit()
-    args = (fit.residuals, fit.leverage, fit.rank)
+    args = (fit.fitted_residuals, fit.leverage, fit.rank)
     with pytest.raises(ValueError, match=r"y must be 1-D with one value per sample \(5"):
         criteria_table(*args, y=np.ones(4))
     with pytest.raises(ValueError, match=r"one condition number per capacity \(3\)"):
@@ -384,7 +389,7 @@ def test_guard_table_values_are_the_rounding_level() -> None:
     Z = PolynomialBasis(4).fit(x).transform(x)
     fit = nested_least_squares(Z, y, n_columns_per_capacity=[1, 2, 3, 4, 5])
     t = criteria_table(
-        fit.residuals, fit.leverage, fit.rank, rss=fit.rss, y=y, condition=fit.condition
+        fit.fitted_residuals, fit.leverage, fit.rank, rss=fit.rss, y=y, condition=fit.condition
     )
     tau = rounding_level_rss(y, fit.condition)
     exact = t["exact_fit"].to_numpy()
@@ -407,7 +412,7 @@ def test_guard_with_all_zero_response_stays_finite() -> None:
     y = np.zeros(8)
     Z = PolynomialBasis(2).fit(x).transform(x)
     fit = nested_least_squares(Z, y, n_columns_per_capacity=[1, 2, 3])
-    t = criteria_table(fit.residuals, fit.leverage, fit.rank, y=y, condition=fit.condition)
+    t = criteria_table(fit.fitted_residuals, fit.leverage, fit.rank, y=y, condition=fit.condition)
     assert t["exact_fit"].all()
     for rule in CRITERIA:
         values = t[rule].to_numpy()

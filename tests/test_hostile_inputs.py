@@ -985,7 +985,6 @@ def _inputs(draw):
 @given(_inputs())
 def test_fuzzed_shapes_and_values(inputs):
     X, y, ladder, plan, engine = inputs
-    engine = engine if ladder.linear_least_squares else "generic"
     X0, y0 = X.copy(), y.copy()
     try:
         result, caught = _run(

@@ -75,11 +75,11 @@ def test_feature_ladder_checks_counts_against_data():
         cx.FeatureLadder([1], order=[7]).check_data(X, None)
 
 
-def test_polynomial_interpolation_warning_and_training_problem():
+def test_polynomial_interpolation_warning_and_training_shortfall():
     x = np.repeat(np.arange(4.0), 2)[:, None]
     warnings = cx.PolynomialLadder([0, 3]).check_data(x, None)
     assert any("interpolates" in w for w in warnings)
-    assert "needs 4" in cx.PolynomialLadder([3]).training_problem(0, x[:4])
+    assert "needs 4" in cx.PolynomialLadder([3]).training_shortfall(0, x[:4])
 
 
 def test_reprs():

@@ -24,7 +24,7 @@ from sklearn.tree import DecisionTreeRegressor
 from sklearn.utils.estimator_checks import parametrize_with_checks
 
 import complexity as cx
-from complexity.ladders import _rank_correlation
+from complexity._ranking import _rank_correlation
 
 pytestmark = pytest.mark.filterwarnings("ignore::complexity.CapacityWarning")
 

@@ -7,7 +7,11 @@ consecutive resamples (made where the outcomes are), equal bit for bit to the ta
 outcomes grouped the same way. No engine ever has to hold all predictions.
 
 - :mod:`complexity.engine.generic`: clone and fit any scikit-learn estimator, through joblib.
-- :mod:`complexity.engine.linear`: least-squares ladders, every capacity from one factorization.
+- :mod:`complexity.engine.linear`: least-squares ladders (those whose
+  :meth:`~complexity.ladders.Ladder.nested_design` is not None), every capacity of every resample
+  batched; its numerics in ``_batched``, its fit on all the data in
+  :mod:`complexity.engine.full_fit`.
+- ``_dispatch``: the one joblib loop both engines use, and the single-threaded BLAS setting.
 """
 
 from __future__ import annotations

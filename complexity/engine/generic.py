@@ -12,7 +12,6 @@ from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 import numpy as np
-from joblib import Parallel, delayed
 from numpy.typing import NDArray
 from sklearn.base import clone
 
@@ -20,6 +19,7 @@ from .._contract import FullFit, Outcome, Problem
 from ..accumulate import Tally, tallies
 from ..accumulate import block_size as _points_block_size
 from ..plans import STREAM_ESTIMATOR, STREAM_FULL_FIT, Resample, child_seed
+from ._dispatch import map_chunks, slices
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies"]
 
@@ -103,7 +103,7 @@ def _one_resample(problem: Problem, r: Resample, keys: list[list[str]]) -> Outco
     train_mse = np.full(C, np.nan)
     failures: dict[int, str] = {}
     for c, model in enumerate(problem.models):
-        reason = problem.ladder.training_problem(c, X_tr)
+        reason = problem.ladder.training_shortfall(c, X_tr)
         if reason is not None:
             failures[c] = reason
             continue
@@ -125,18 +125,18 @@ def _one_resample(problem: Problem, r: Resample, keys: list[list[str]]) -> Outco
     return Outcome(r.index, r.replicate, r.test, residuals, train_mse, failures)
 
 
-def _chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
+def _fit_chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
+    """Outcomes of a chunk of resamples, fitted in order."""
     keys = [_random_state_keys(m) for m in problem.models]  # once per chunk, not per fit
     return [_one_resample(problem, r, keys) for r in chunk]
 
 
-def _chunks(n_resamples: int, n_jobs: int | None) -> list[tuple[int, int]]:
-    """``(start, stop)`` positions of each chunk; the resamples are taken only when it runs."""
+def _chunk_length(n_resamples: int, n_jobs: int | None) -> int:
+    """Resamples per task: about four tasks per worker, at most 32 resamples each."""
     from joblib import effective_n_jobs
 
     workers = max(1, effective_n_jobs(n_jobs))
-    size = max(1, min(32, -(-n_resamples // (4 * workers))))
-    return [(i, min(i + size, n_resamples)) for i in range(0, n_resamples, size)]
+    return max(1, min(32, -(-n_resamples // (4 * workers))))
 
 
 def run(
@@ -157,19 +157,19 @@ def run(
     on_done : callable, optional
         Called with the number of fits finished, after each chunk (for progress display).
     """
-    chunks = _chunks(len(resamples), n_jobs)
-    if not chunks:
-        return
-    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
-    tasks = (delayed(_chunk)(problem, resamples[a:b]) for a, b in chunks)
-    if len(chunks) == 1:
-        results: Any = (_chunk(problem, resamples[: len(resamples)]),)
-    else:
-        results = Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
-    for outcomes in results:
+    # a generator of slices: joblib draws a few tasks ahead, so only those chunks' index arrays
+    # exist at any time
+    chunks = slices(resamples, _chunk_length(len(resamples), n_jobs))
+    C = problem.n_capacities
+    for outcomes in map_chunks(
+        _fit_chunk,
+        (problem,),
+        chunks,
+        n_jobs=n_jobs,
+        size=lambda outcomes: len(outcomes) * C,
+        on_done=on_done,
+    ):
         yield from outcomes
-        if on_done is not None:
-            on_done(len(outcomes) * problem.n_capacities)
 
 
 def block_size(problem: Problem) -> int:
