@@ -54,8 +54,9 @@ class _OffScale:
 def _uses_log(values: np.ndarray, log: Any) -> bool:
     if log != "auto":
         return bool(log)
-    finite = values[np.isfinite(values)]
-    return bool(finite.size > 0 and finite.min() > 0 and finite.max() / finite.min() > 30)
+    # zeros (an exact fit) and negative band edges cannot sit on a log axis; they are marked
+    positive = values[np.isfinite(values) & (values > 0)]
+    return bool(positive.size > 0 and positive.max() / positive.min() > 30)
 
 
 def _error_axis(

@@ -45,3 +45,14 @@ def test_readme_states_the_cautions():
     readme = (ROOT / "README.md").read_text(encoding="utf-8").lower()
     for phrase in ("no extrapolation", "reference standards", "local codes and licensed practice"):
         assert phrase in readme
+
+
+def test_readme_and_save_say_what_a_saved_result_does_not_keep():
+    # issue 12 item 2: the "exact round trip" promise names its one exception in both places
+    import complexity as cx
+
+    readme = " ".join((ROOT / "README.md").read_text(encoding="utf-8").split())
+    assert "Not saved: `predictions`" in readme
+    assert "every coefficient table `result.coefficients(c)` could give" in readme
+    doc = " ".join((cx.SweepResult.save.__doc__ or "").split())
+    assert "Not saved: ``predictions``" in doc
