@@ -5,8 +5,12 @@ are no scripts, fonts or links to fetch, so the report opens offline and can be 
 calibration record it supports.
 
 Sections: recommendation (with the reason of every rule), figures, the curves table, the data
-summary, the noise estimate and its method, failures and notes, cautions, reproducibility (seed,
-plan, ladder, library versions, the call and the command line).
+summary, the noise estimate and its method, failures and notes, cautions (once, worded for the
+ladder at hand), reproducibility (seed, plan, ladder, library versions, the call and the command
+line). The text speaks of the report's own sections, never of Python attributes.
+
+The report is a later stage than :mod:`complexity.result`: it reads a result by its shape and
+never imports that module at run time.
 """
 
 from __future__ import annotations
@@ -24,27 +28,16 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ._figures_base import check_result
+from ._figures_curves import _errors_off_scale, _negative_bias, _negative_bias_words
+from ._text import CURVE_COLUMNS, capacity_words, cautions, ladder_kind, reader_words
 from ._validation import _short_repr, check_X_y
-from .result import CURVE_COLUMNS
 
 if TYPE_CHECKING:  # pragma: no cover
     from .ladders import Ladder
     from .result import SweepResult
 
 __all__ = ["render_report", "write_report"]
-
-#: The cautions every report carries (the full text of ``complexity.result.CAUTION`` follows them).
-CAUTIONS: tuple[str, ...] = (
-    "Do not use a fitted model outside the measured range of the predictors: {ranges}. "
-    "Polynomials in particular bend away quickly beyond the data, and the resampling that chose "
-    "the capacity never saw those values.",
-    "Validate a calibration against reference standards before it is used. This analysis "
-    "chooses how much capacity one data set supports; it does not establish traceability or the "
-    "uncertainty of the calibration.",
-    "Local codes and licensed practice decide wherever the result feeds a safety-relevant, legal "
-    "or contractual use. A recommendation from this library is an input to that judgement, not "
-    "a replacement for it.",
-)
 
 _COLUMN_WORDS: dict[str, str] = {
     "train_mse": "training error: mean squared error of the model fitted on all data",
@@ -90,10 +83,12 @@ h2{font-size:1.12rem;margin:2em 0 .5em;padding-bottom:.2em;border-bottom:2px sol
 .lead{color:#555;margin-top:0}
 .verdict{border-left:6px solid #D55E00;background:#fdf3ec;padding:12px 16px;margin:18px 0}
 .verdict .big{font-size:1.3rem;font-weight:700}
-.scroll{overflow-x:auto}
+.scroll{overflow-x:auto;max-width:100%}
 table{border-collapse:collapse;font-size:.86rem;margin:.4em 0 1em}
 th,td{padding:3px 9px;border-bottom:1px solid #e6e6e6;text-align:right;vertical-align:top}
-th{background:#f2f2ee;font-weight:600}
+td{white-space:nowrap}
+td.text{white-space:normal;overflow-wrap:anywhere;min-width:12em}
+th{background:#f2f2ee;font-weight:600;overflow-wrap:anywhere;hyphens:auto}
 td.text,th.text{text-align:left}
 tr.chosen td{background:#fdf3ec;font-weight:600}
 figure{margin:1.2em 0}
@@ -121,7 +116,8 @@ _FIGURE_CAPTIONS: dict[str, str] = {
     "single bar means the choice is settled; several bars mean neighbouring capacities are "
     "about as good.",
     "conditioning": "How well-determined the fitted coefficients are: a growing condition number "
-    "means the design columns are close to dependent and coefficients become unstable.",
+    "means the design columns are close to dependent and coefficients become unstable. The "
+    "solid line is the stable basis the fits use.",
 }
 
 
@@ -317,18 +313,39 @@ def _noise_section(result: SweepResult, y_units: str | None) -> str:
         f"<dt>noise SD</dt><dd>{_esc(_num(sd))}{_esc(unit)}</dd>"
         f"<dt>method</dt><dd><code>{_esc(est.method)}</code>: {_esc(words)}</dd>"
         f"<dt>degrees of freedom</dt><dd>{_esc(df)}</dd>"
-        f"<dt>detail</dt><dd>{_esc(est.detail)}</dd>"
+        f"<dt>detail</dt><dd>{_esc(reader_words(est.detail))}</dd>"
         "</dl>"
         "<p><small>Squared bias is what remains of the test error after variance and this noise "
         "estimate are taken out, so it inherits the uncertainty of the estimate.</small></p>"
     )
 
 
-def _figure_html(name: str, fig: Any) -> str:
+def _caption(name: str, result: SweepResult, X: Any) -> str:
+    """The figure's caption, with what this result's figure shows beyond the usual."""
+    text = _FIGURE_CAPTIONS.get(name, "")
+    if name == "errors":
+        off = _errors_off_scale(result)
+        if off:
+            text += (
+                " To keep the region of the choice readable the axis is cut; values off the "
+                "scale are drawn as triangles at its edge: " + "; ".join(off) + "."
+            )
+    elif name == "parts":
+        negative = _negative_bias(result)
+        if negative:
+            text += " Marked with a cross: " + _negative_bias_words(result, negative) + "."
+    elif name == "conditioning" and X is not None and ladder_kind(result.metadata) == "polynomial":
+        text += (
+            " The dashed line is what the raw power design (1, x, x², … on the measured x, "
+            "columns scaled to unit length) would have had; the library does not fit on it."
+        )
+    return text
+
+
+def _figure_html(name: str, fig: Any, caption: str) -> str:
     from .plot import figure_png
 
     data = base64.b64encode(figure_png(fig)).decode("ascii")
-    caption = _FIGURE_CAPTIONS.get(name, "")
     return (
         f'<figure id="figure-{_esc(name)}"><img alt="{_esc(name)} figure" '
         f'src="data:image/png;base64,{data}"><figcaption>{_esc(caption)}</figcaption></figure>'
@@ -360,11 +377,9 @@ def render_report(
     >>> page.startswith("<!DOCTYPE html>")
     True
     """
-    from .plot import capacity_words, figures
-    from .result import CAUTION, SweepResult
+    from .plot import figures
 
-    if not isinstance(result, SweepResult):
-        raise TypeError(f"result must be a SweepResult; got {_short_repr(result)}.")
+    check_result(result)
     for name, value in (
         ("x_units", x_units),
         ("y_units", y_units),
@@ -388,7 +403,9 @@ def render_report(
         band_resamples=band_resamples,
         views=views,
     )
-    figure_html = "".join(_figure_html(name, fig) for name, fig in figs.items())
+    figure_html = "".join(
+        _figure_html(name, fig, _caption(name, result, X)) for name, fig in figs.items()
+    )
     skipped = ""
     if "fits" not in figs and (views is None or "fits" in views):
         skipped = (
@@ -398,7 +415,8 @@ def render_report(
 
     rules = result.rules.copy()
     rules["capacity"] = [str(v) for v in rules["capacity"]]
-    reason = result.rules.loc[result.rule, "reason"]
+    rules["reason"] = [reader_words(str(v)) for v in rules["reason"]]
+    reason = reader_words(str(result.rules.loc[result.rule, "reason"]))
     pos = list(result.curves.index).index(result.recommended)
     chosen_share = result.stability.reindex(result.curves.index).to_numpy(dtype=np.float64)[pos]
     share_text = (
@@ -412,6 +430,7 @@ def render_report(
             f" {split.get('relation', '')} Standard error of the test error: "
             f"{split.get('test_mse_se', '')}."
         )
+    share_text = reader_words(share_text)
     main_columns = [c for c in _MAIN_COLUMNS if c in result.curves]
     curves = result.curves[main_columns].copy()
     curves["chosen (share)"] = result.stability.reindex(result.curves.index).to_numpy()
@@ -435,10 +454,13 @@ def render_report(
     notes = ""
     if result.notes:
         notes = (
-            "<h3>Notes</h3><ul>" + "".join(f"<li>{_esc(n)}</li>" for n in result.notes) + "</ul>"
+            "<h3>Notes</h3><ul>"
+            + "".join(f"<li>{_esc(reader_words(n))}</li>" for n in result.notes)
+            + "</ul>"
         )
-    cautions = "".join(
-        f"<li>{_esc(c.format(ranges=_ranges_text(result, names)))}</li>" for c in CAUTIONS
+    kind = ladder_kind(meta)
+    caution_items = "".join(
+        f"<li>{_esc(c)}</li>" for c in cautions(kind, _ranges_text(result, names))
     )
     versions = _versions(result)
     repro = [
@@ -509,7 +531,7 @@ def render_report(
 
 <section id="cautions">
 <h2>Cautions</h2>
-<div class="caution"><ul>{cautions}</ul><p>{_esc(CAUTION)}</p></div>
+<div class="caution"><ul>{caution_items}</ul></div>
 </section>
 
 <section id="reproducibility">

@@ -15,7 +15,19 @@ by any tool. Schema (``"format": "complexity.sweep-result"``, ``"version": 1``):
      "failures":  [{"capacity", "count", "first_message"}, ...],
      "notes":     [str, ...],
      "metadata":  {...},
-     "inclusion": {"columns": [...], "data": [[share, ...] per capacity]}   (feature ladders only)}
+     "inclusion": {"columns": [...], "data": [[share, ...] per capacity]}   (feature ladders only),
+     "coefficients": null (no tables) or
+                  [{"capacity", "index_name", "terms": [...], "estimate": [...],
+                    "std_error": [...], "attrs": {str: str}}
+                   or {"capacity", "unavailable": reason}, ...]}
+
+What survives a save and a load: everything above, the floats bit for bit, including every
+coefficient table :meth:`SweepResult.coefficients` can give (a table it cannot give is saved as
+its reason, and asking for it after loading raises the same ``ValueError`` message). What does
+not: ``predictions`` (``keep_predictions=True``; a loaded result has ``None``), and in
+``metadata`` tuples come back as lists and numpy values as plain Python numbers and lists.
+Files written before the coefficient tables were saved load without them, and
+:meth:`SweepResult.coefficients` says so.
 """
 
 from __future__ import annotations
@@ -23,7 +35,7 @@ from __future__ import annotations
 import html
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -32,32 +44,14 @@ import numpy as np
 import pandas as pd
 
 from ._labels import capacity_index
+from ._text import CAUTION as CAUTION  # the general caution, importable from here as before
+from ._text import CURVE_COLUMNS, caution_text, ladder_kind
 from .noise import NoiseEstimate
 
 __all__ = ["SweepResult", "load_result"]
 
 FORMAT = "complexity.sweep-result"
 VERSION = 1
-
-CAUTION = (
-    "Caution: a recommended capacity describes this data set only. Do not use the fitted model "
-    "outside the measured range of the predictors (polynomials diverge quickly beyond the data). "
-    "Where the result feeds a sensor calibration or any safety-relevant use, validate the "
-    "calibration against reference standards; local codes and licensed practice decide."
-)
-
-
-#: the main curve columns in display order: the summary table shows these when present
-#: (``oob_excess`` only where it is not zero); the report's curves table starts with them
-CURVE_COLUMNS = (
-    "train_mse",
-    "test_mse",
-    "test_mse_se",
-    "bias_sq",
-    "variance",
-    "oob_excess",
-    "noise",
-)
 
 
 @dataclass
@@ -135,16 +129,12 @@ class SweepResult:
         >>> list(r.coefficients(1).columns)
         ['estimate', 'std_error']
         """
-        if not self.coefficient_tables:
-            raise ValueError(
-                "coefficients are available for least-squares ladders swept with the exact engine; "
-                "this result has none."
-            )
-        if capacity not in self.coefficient_tables:
-            raise ValueError(
-                f"capacity must be one of {list(self.coefficient_tables)}; got {capacity!r}."
-            )
-        return self.coefficient_tables[capacity]
+        tables = self.coefficient_tables
+        if not tables:
+            raise ValueError(getattr(tables, "missing", None) or _NO_TABLES)
+        if capacity not in tables:
+            raise ValueError(f"capacity must be one of {list(tables)}; got {capacity!r}.")
+        return tables[capacity]
 
     @property
     def capacity_name(self) -> str:
@@ -206,7 +196,7 @@ class SweepResult:
         if self.notes:
             lines.append("Notes:")
             lines += [f"  - {n}" for n in self.notes]
-        lines += ["", CAUTION]
+        lines += ["", caution_text(ladder_kind(self.metadata))]
         return "\n".join(lines)
 
     def __repr__(self) -> str:
@@ -224,9 +214,10 @@ class SweepResult:
             f"{html.escape(str(self.recommended))}</b> (rule <code>{html.escape(self.rule)}</code>: "
             f"{reason})</p>"
             f"<p>Noise variance {self.noise.value:.4g} ({html.escape(self.noise.method)})</p>"
-            f"{self.curves[shown].to_html(float_format=lambda v: f'{v:.4g}')}"
+            '<div style="overflow-x:auto;max-width:100%">'
+            f"{self.curves[shown].to_html(float_format=lambda v: f'{v:.4g}')}</div>"
             f"{'<ul>' + notes + '</ul>' if notes else ''}"
-            f"<p><small>{html.escape(CAUTION)}</small></p></div>"
+            f"<p><small>{html.escape(caution_text(ladder_kind(self.metadata)))}</small></p></div>"
         )
 
     def plot(self, view: str = "errors", **options: Any) -> Any:
@@ -299,10 +290,39 @@ class SweepResult:
                 "columns": [str(c) for c in self.inclusion.columns],
                 "data": [[float(v) for v in row] for row in self.inclusion.to_numpy()],
             }
+        doc["coefficients"] = self._coefficients_document()
         return doc
+
+    def _coefficients_document(self) -> list[dict[str, Any]] | None:
+        """Every coefficient table :meth:`coefficients` gives, or the reason it gives none."""
+        if not self.coefficient_tables:
+            return None
+        out: list[dict[str, Any]] = []
+        for capacity in list(self.coefficient_tables):
+            entry: dict[str, Any] = {"capacity": _plain(capacity)}
+            try:
+                table = self.coefficients(capacity)
+            except (ValueError, ArithmeticError, LookupError) as exc:
+                entry["unavailable"] = str(exc)
+            else:
+                entry.update(
+                    index_name=table.index.name,
+                    terms=[str(t) for t in table.index],
+                    estimate=[float(v) for v in table["estimate"]],
+                    std_error=[float(v) for v in table["std_error"]],
+                    attrs={str(k): str(v) for k, v in table.attrs.items()},
+                )
+            out.append(entry)
+        return out
 
     def save(self, path: str | Path) -> Path:
         """Write the result as a JSON document; :func:`load_result` reads it back exactly.
+
+        Exactly means bit for bit: the curves, rules, stability, noise estimate, failures,
+        notes, inclusion shares and every coefficient table :meth:`coefficients` can give (a
+        table it cannot give is saved as its reason, and asking for it after loading raises
+        ``ValueError`` with that reason). Not saved: ``predictions`` (a loaded result has
+        ``None``). In ``metadata`` tuples come back as lists and numpy values as plain numbers.
 
         Examples
         --------
@@ -311,8 +331,9 @@ class SweepResult:
         >>> X, y = cx.datasets.pressure_sensor()
         >>> r = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(10), random_state=1)
         >>> path = r.save(pathlib.Path(tempfile.mkdtemp()) / "sweep.json")
-        >>> cx.load_result(path).curves.equals(r.curves)
-        True
+        >>> back = cx.load_result(path)
+        >>> back.curves.equals(r.curves), back.coefficients(2).equals(r.coefficients(2))
+        (True, True)
         """
         path = Path(path)
         text = json.dumps(_encode(self.to_dict()), indent=1, allow_nan=False)
@@ -400,8 +421,72 @@ def load_result(path: str | Path) -> SweepResult:
         failures=failures,
         notes=list(doc["notes"]),
         metadata=doc["metadata"],
+        coefficient_tables=_tables_from_document(doc),
         inclusion=inclusion,
     )
+
+
+_NO_TABLES = (
+    "this result has no coefficient tables: they are made for least-squares ladders swept with "
+    "the exact engine (and not for designs too large to convert to the user's units)."
+)
+
+
+class _SavedTables(Mapping[Any, pd.DataFrame]):
+    """Coefficient tables read back from a saved result; a gap raises its saved reason."""
+
+    def __init__(
+        self,
+        tables: dict[Any, pd.DataFrame],
+        gaps: dict[Any, str],
+        order: list[Any] | None = None,
+        missing: str | None = None,
+    ) -> None:
+        self._tables, self._gaps, self.missing = tables, gaps, missing
+        self._order = list(order) if order is not None else [*tables, *gaps]
+
+    def __getitem__(self, capacity: Any) -> pd.DataFrame:
+        if capacity in self._gaps:
+            raise ValueError(self._gaps[capacity])
+        return self._tables[capacity]
+
+    def __iter__(self) -> Iterator[Any]:
+        return iter(self._order)
+
+    def __len__(self) -> int:
+        return len(self._order)
+
+
+def _tables_from_document(doc: dict[str, Any]) -> Mapping[Any, pd.DataFrame] | None:
+    if "coefficients" not in doc:
+        return _SavedTables(
+            {},
+            {},
+            missing="this result was saved without its coefficient tables (by an earlier "
+            "version of complexity); rerun the sweep to get them.",
+        )
+    entries = doc["coefficients"]
+    if entries is None:
+        return None
+    tables: dict[Any, pd.DataFrame] = {}
+    gaps: dict[Any, str] = {}
+    order: list[Any] = []
+    for entry in entries:
+        capacity = entry["capacity"]
+        order.append(capacity)
+        if "unavailable" in entry:
+            gaps[capacity] = str(entry["unavailable"])
+            continue
+        table = pd.DataFrame(
+            {
+                "estimate": np.array(_decode_column(entry["estimate"]), dtype=np.float64),
+                "std_error": np.array(_decode_column(entry["std_error"]), dtype=np.float64),
+            },
+            index=pd.Index(entry["terms"], name=entry.get("index_name")),
+        )
+        table.attrs.update(entry.get("attrs") or {})
+        tables[capacity] = table
+    return _SavedTables(tables, gaps, order)
 
 
 def _failures_frame(rows: list[tuple[Any, int, str]], capacity_name: str) -> pd.DataFrame:

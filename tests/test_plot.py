@@ -319,3 +319,103 @@ def test_conditioning_view_of_an_exact_sweep(result):
         result.curves["max_abs_coefficient"].to_numpy(),
     )
     assert "conditioning" in figures(result, views=["conditioning", "errors"])
+
+
+def _exploding(result):
+    """The fixture's curves with errors that explode at the top (as near-interpolating fits do)
+    and a training error that reaches exactly zero there."""
+    curves = result.curves.copy()
+    last = curves.index[-2:]
+    curves.loc[last, "test_mse"] = [1e8, 1e12]
+    curves.loc[last, "test_mse_se"] = [1e7, 1e11]
+    curves.loc[curves.index[-1], "train_mse"] = 0.0
+    return dataclasses.replace(result, curves=curves)
+
+
+def test_errors_view_keeps_the_region_of_the_choice_readable(result):
+    # issue 12 item 8: errors of 1e8..1e12 must not squash the curve near its minimum
+    r = _exploding(result)
+    ax = plot(r, "errors").axes[0]
+    assert ax.get_yscale() == "log"
+    low = r.curves["test_mse"].min()
+    bottom, top = ax.get_ylim()
+    assert top == pytest.approx(low * 1e3) and bottom == pytest.approx(low / 1e3)
+    # the lines still carry the true values; the off-scale points are marked at the edges
+    np.testing.assert_array_equal(_line(ax, "test").get_ydata(), r.curves["test_mse"].to_numpy())
+    up = [ln for ln in ax.get_lines() if ln.get_gid() == "off-scale-above"]
+    assert len(up) == 1 and list(up[0].get_xdata()) == list(r.curves.index[-2:])
+    assert set(up[0].get_ydata()) == {top}
+    down = [ln for ln in ax.get_lines() if ln.get_gid() == "off-scale-below"]
+    assert len(down) == 1 and list(down[0].get_xdata()) == [r.curves.index[-1]]
+    text = " ".join(_legend_texts(ax)).replace("\n", " ")
+    assert "test error above the axis at polynomial degree 6, 7 (up to 1e+12)" in text
+    assert "training error below the axis at polynomial degree 7 (down to 0)" in text
+    # clip=False shows everything (and marks nothing)
+    full = plot(r, "errors", clip=False).axes[0]
+    assert full.get_ylim()[1] > 1e12
+    assert not [ln for ln in full.get_lines() if str(ln.get_gid()).startswith("off-scale")]
+
+
+def test_errors_view_of_an_ordinary_sweep_is_not_cut(result):
+    ax = plot(result, "errors").axes[0]
+    assert not [ln for ln in ax.get_lines() if str(ln.get_gid()).startswith("off-scale")]
+    values = result.curves[["train_mse", "test_mse"]].to_numpy()
+    assert ax.get_ylim()[0] < values.min() and ax.get_ylim()[1] > values.max()
+
+
+def test_parts_view_flags_squared_bias_estimated_below_zero(data):
+    # issue 12 item 8: a negative bias_sq is drawn as 0, and the figure says so where it happens
+    X, y = data
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", cx.CapacityWarning)
+        result = cx.sweep(
+            cx.PolynomialLadder(range(0, 8)), X, y, plan=cx.Bootstrap(50), random_state=0
+        )
+    negative = result.curves.index[result.curves["bias_sq"] < 0]
+    assert len(negative) >= 1  # this sweep has some (its CapacityWarning says so)
+    ax = plot(result, "parts").axes[0]
+    marks = _line(ax, "bias-below-zero")
+    assert list(marks.get_xdata()) == list(negative)
+    np.testing.assert_allclose(marks.get_ydata(), result.curves.loc[negative, "noise"])
+    label = marks.get_label()
+    assert "squared bias estimated below zero at polynomial degree" in label
+    assert ", ".join(str(c) for c in negative) in label
+    assert "shown as 0" in label and "noise and variance estimates together exceed" in label
+    assert label.replace("\n", " ") in [t.replace("\n", " ") for t in _legend_texts(ax)]
+    clean = result.curves.assign(bias_sq=result.curves["bias_sq"].clip(lower=0))
+    ax = plot(dataclasses.replace(result, curves=clean), "parts").axes[0]
+    assert not [ln for ln in ax.get_lines() if ln.get_gid() == "bias-below-zero"]
+
+
+def test_conditioning_view_compares_with_the_raw_power_design(result, data):
+    # issue 12 item 7: beside the stable basis, what 1, x, x², ... on the user's x would have had
+    X, _ = data
+    ax = plot(result, "conditioning", X=X).axes[0]
+    raw = _line(ax, "raw-condition")
+    x = X["temperature_c"].to_numpy()
+    expected = []
+    for d in result.curves.index:  # numpy's SVD of the unit-length-scaled Vandermonde matrix
+        V = np.vander(x, d + 1, increasing=True)
+        s = np.linalg.svd(V / np.linalg.norm(V, axis=0), compute_uv=False)
+        expected.append(s[0] / s[-1])
+    np.testing.assert_allclose(raw.get_ydata(), expected, rtol=1e-9)
+    assert "columns scaled to unit length" in raw.get_label()
+    stable = _line(ax, "condition")
+    assert "stable basis the fits use" in stable.get_label()
+    assert np.all(raw.get_ydata()[2:] > stable.get_ydata()[2:])  # raw powers are worse
+    assert ax.get_yscale() == "log"
+    # without the data, or for a ladder that is not polynomial, no comparison line
+    assert not [
+        ln
+        for ln in plot(result, "conditioning").axes[0].get_lines()
+        if ln.get_gid() == "raw-condition"
+    ]
+    assert "raw-condition" in {
+        ln.get_gid()
+        for ln in figures(result, X=X, views=["conditioning"])["conditioning"].axes[0].get_lines()
+    }
+
+
+def test_long_legend_entries_are_wrapped(result):
+    ax = plot(_exploding(result), "errors").axes[0]
+    assert all(len(line) <= 90 for t in _legend_texts(ax) for line in t.splitlines())

@@ -16,8 +16,8 @@ import pandas as pd
 import pytest
 
 import complexity as cx
-from complexity.report import CAUTIONS, python_call, render_report, write_report
-from complexity.result import CAUTION
+from complexity._text import cautions
+from complexity.report import python_call, render_report, write_report
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
 # HTML void elements (WHATWG HTML standard, section 13.1.2): they have no end tag
@@ -149,13 +149,73 @@ def test_report_has_recommendation_rules_and_noise(page, result):
     assert "(kPa)²" in text  # noise variance in the squared response unit
 
 
-def test_report_has_the_cautions(page):
+def _cautions_text(page: str) -> str:
+    section = re.search(r'<section id="cautions">(.*?)</section>', page, flags=re.S)
+    assert section
+    return " ".join(re.sub(r"<[^>]+>", " ", section.group(1)).split())
+
+
+def test_report_has_the_cautions_once_worded_for_polynomials(page):
+    # issue 12 item 8: one cautions block, in the words of the ladder at hand
     text = _parse(page).plain
     assert "outside the measured range of the predictors: temperature_c from -20 to 60" in text
-    assert "reference standards" in text
-    assert "Local codes and licensed practice decide" in text
-    assert " ".join(CAUTION.split()) in text
-    assert len(CAUTIONS) == 3
+    for phrase in ("reference standards", "Local codes and licensed practice decide"):
+        assert text.count(phrase) == 1, phrase
+    block = _cautions_text(page)
+    expected = cautions("polynomial", "temperature_c from -20 to 60")
+    assert len(expected) == 3
+    for sentence in expected:
+        assert " ".join(sentence.split()) in block
+    assert "fitted polynomial" in block and "calibration polynomial" in block
+
+
+def test_report_cautions_for_other_ladders_speak_of_the_model(tmp_path):
+    # scikit-learn's bundled diabetes data: a feature-count ladder is not a calibration polynomial
+    from sklearn.datasets import load_diabetes
+
+    X, y = load_diabetes(return_X_y=True, as_frame=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        r = cx.sweep(cx.FeatureLadder(range(1, 4)), X, y, plan=cx.CrossValidation(3))
+    block = _cautions_text(render_report(r, views=["errors"]))
+    assert "polynomial" not in block.lower()
+    assert "Do not use the fitted model outside the measured range" in block
+    assert "reference standards" in block and "Local codes and licensed practice decide" in block
+
+
+def test_report_text_names_its_own_sections_not_python_attributes(data, tmp_path):
+    # issue 12 item 8: a failed fit's note says "see result.failures" in Python; not in the report
+    from sklearn.base import BaseEstimator, RegressorMixin
+
+    class Brittle(RegressorMixin, BaseEstimator):
+        def __init__(self, depth=1):
+            self.depth = depth
+
+        def fit(self, X, y):
+            if self.depth == 3:
+                raise ValueError("cannot fit at depth 3")
+            self.mean_ = float(y.mean())
+            return self
+
+        def predict(self, X):
+            return [self.mean_] * len(X)
+
+    X, y = data
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        r = cx.sweep(
+            cx.ParamLadder(Brittle(), "depth", [1, 2, 3], simpler="low"),
+            X,
+            y,
+            plan=cx.CrossValidation(3),
+            random_state=0,
+        )
+    assert len(r.failures) and any("result.failures" in n for n in r.notes)
+    page = render_report(r, views=["errors"])
+    # everything but the reproducible call (which is Python on purpose)
+    prose = re.sub(r"<pre>.*?</pre>", "", page, flags=re.S)
+    assert not re.search(r"\bresult\.[a-z_]", _parse(prose).plain)
+    assert "see the table of failed fits" in _parse(page).plain
 
 
 def test_report_reproducibility_block(page, result, data):
@@ -176,6 +236,40 @@ def test_python_call_repeats_the_sweep(result, data):
         again = eval(python_call(result), {"cx": cx, "X": X, "y": y})
     pd.testing.assert_frame_equal(again.curves, result.curves)
     assert again.recommended == result.recommended
+
+
+def test_report_tables_scroll_and_wrap_within_the_page(page):
+    # issue 12 item 8: the wide curves table must not run past the page: every table sits in a
+    # box that scrolls sideways, headers wrap, and text cells wrap
+    assert page.count("<table>") == page.count('<div class="scroll"><table>')
+    css = re.search(r"<style>(.*?)</style>", page, flags=re.S).group(1)
+    assert ".scroll{overflow-x:auto;max-width:100%}" in css
+    assert re.search(r"th\{[^}]*overflow-wrap:anywhere", css)
+    assert re.search(r"td\.text\{[^}]*white-space:normal", css)
+    curves = re.search(r'<section id="curves">(.*?)</section>', page, flags=re.S).group(1)
+    assert curves.lstrip().split("\n", 2)[1].startswith('<div class="scroll"><table>')
+
+
+def test_report_captions_say_what_is_off_the_scale_and_below_zero(data):
+    X, y = data
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", cx.CapacityWarning)
+        r = cx.sweep(cx.PolynomialLadder(range(0, 8)), X, y, plan=cx.Bootstrap(50), random_state=0)
+    curves = r.curves.copy()
+    curves.loc[7, ["test_mse", "test_mse_se"]] = [1e9, 1e8]
+    r = dataclasses.replace(r, curves=curves)
+    page = render_report(r, X=X, views=["errors", "parts", "conditioning"])
+    captions = dict(
+        re.findall(r'<figure id="figure-(\w+)">.*?<figcaption>(.*?)</figcaption>', page)
+    )
+    assert "test error above the axis at polynomial degree 7 (up to 1e+09)" in captions["errors"]
+    negative = ", ".join(str(c) for c in r.curves.index[r.curves["bias_sq"] < 0])
+    assert (
+        negative
+        and f"squared bias estimated below zero at polynomial degree {negative}"
+        in (captions["parts"])
+    )
+    assert "raw power design" in captions["conditioning"]
 
 
 def test_report_curves_table_marks_the_recommended_row(page, result):

@@ -1,6 +1,8 @@
 """Tests for complexity.result: summary, HTML, and the exact JSON round trip."""
 
+import dataclasses
 import json
+from collections.abc import Mapping
 
 import numpy as np
 import pandas as pd
@@ -9,6 +11,7 @@ from sklearn.datasets import load_diabetes
 from sklearn.tree import DecisionTreeRegressor
 
 import complexity as cx
+from complexity._text import caution_text
 from complexity.result import CAUTION
 
 pytestmark = pytest.mark.filterwarnings("ignore::complexity.CapacityWarning")
@@ -71,10 +74,14 @@ def test_load_refuses_other_files(tmp_path):
 def test_summary_and_html(result):
     text = result.summary()
     assert f"Recommended degree: {result.recommended}" in text
-    assert CAUTION in text
+    # a polynomial ladder: the caution speaks of polynomials and calibration, once
+    assert caution_text("polynomial") in text and text.count("Caution:") == 1
+    assert "polynomial" in caution_text("polynomial") and CAUTION != caution_text("polynomial")
     assert "one-se" in text and "min" in text
     html = result._repr_html_()
     assert html.startswith("<div>") and "Recommended degree" in html
+    # the wide curves table scrolls inside its box instead of running past the page
+    assert '<div style="overflow-x:auto;max-width:100%"><table' in html
     assert "SweepResult" in repr(result)
 
 
@@ -92,3 +99,78 @@ def test_summary_lists_predictor_inclusion_for_ranked_feature_ladders():
     top = shares.idxmax()
     assert f"{top} {shares[top]:.2f}" in line
     assert f"the first {r.recommended} " in line
+
+
+def test_coefficient_tables_survive_save_and_load_bit_for_bit(result, tmp_path):
+    # issue 12 item 2: after load_result, coefficients(c) gives exactly what the sweep gave
+    back = cx.load_result(result.save(tmp_path / "c.json"))
+    assert list(back.coefficient_tables) == list(result.coefficient_tables)
+    for capacity in result.curves.index:
+        a, b = result.coefficients(capacity), back.coefficients(capacity)
+        pd.testing.assert_frame_equal(a, b, check_exact=True)
+        assert a.to_numpy().tobytes() == b.to_numpy().tobytes()  # the bits, signed zeros too
+        assert a.attrs == b.attrs
+    # the reference value behind the table: numpy's own least-squares polynomial (common practice)
+    x, y = load_diabetes().data[:120, 2], load_diabetes().target[:120]
+    np.testing.assert_allclose(
+        back.coefficients(2)["estimate"].to_numpy(),
+        np.polynomial.polynomial.polyfit(x, y, 2),
+        rtol=1e-9,
+    )
+    with pytest.raises(ValueError, match="capacity must be one of"):
+        back.coefficients(7)
+
+
+def test_a_result_without_coefficient_tables_says_so_after_loading(tmp_path):
+    # a ladder off the exact engine has no tables; a saved and reloaded result says the same
+    data = load_diabetes()
+    r = cx.sweep(
+        cx.ParamLadder(DecisionTreeRegressor(), "max_depth", [1, 2]),
+        data.data[:60, :2],
+        data.target[:60],
+        plan=cx.CrossValidation(3),
+        random_state=0,
+    )
+    back = cx.load_result(r.save(tmp_path / "t.json"))
+    for res in (r, back):
+        with pytest.raises(ValueError, match="has no coefficient tables"):
+            res.coefficients(1)
+    assert json.loads((tmp_path / "t.json").read_text())["coefficients"] is None
+
+
+class _PartlyAvailable(Mapping):
+    """Tables that cannot be made beyond a degree, as lazily computed tables may say."""
+
+    def __init__(self, tables, limit):
+        self._tables, self._limit = tables, limit
+
+    def __getitem__(self, capacity):
+        if capacity > self._limit:
+            raise ValueError(f"coefficient tables are not available beyond degree {self._limit}")
+        return self._tables[capacity]
+
+    def __iter__(self):
+        return iter(self._tables)
+
+    def __len__(self):
+        return len(self._tables)
+
+
+def test_a_table_that_could_not_be_made_is_saved_as_its_reason(result, tmp_path):
+    tables = {c: result.coefficients(c) for c in result.curves.index}
+    partly = dataclasses.replace(result, coefficient_tables=_PartlyAvailable(tables, 1))
+    back = cx.load_result(partly.save(tmp_path / "g.json"))
+    pd.testing.assert_frame_equal(back.coefficients(1), result.coefficients(1), check_exact=True)
+    for capacity in (2, 3):
+        with pytest.raises(ValueError, match="not available beyond degree 1"):
+            back.coefficients(capacity)
+    assert list(back.coefficient_tables) == [0, 1, 2, 3]
+
+
+def test_a_file_saved_before_tables_were_kept_says_why_they_are_missing(result, tmp_path):
+    path = result.save(tmp_path / "old.json")
+    doc = json.loads(path.read_text())
+    del doc["coefficients"]  # the layout of files written before this key existed
+    path.write_text(json.dumps(doc))
+    with pytest.raises(ValueError, match="saved without its coefficient tables"):
+        cx.load_result(path).coefficients(1)
