@@ -26,8 +26,8 @@ from scipy import stats
 from sklearn.neighbors import NearestNeighbors
 from sklearn.preprocessing import StandardScaler
 
+from complexity._noise_differences import _HKT_WEIGHTS
 from complexity.noise import (
-    _HKT_WEIGHTS,
     NoiseEstimate,
     difference_variance,
     estimate_noise,
