@@ -124,8 +124,10 @@ def neighbour_trend_variance(
 
     **Neighbours.** Distances are squared Euclidean distances of the scaled rows, computed from
     the coordinate differences; equal distances are ordered by the lowest row index, so the
-    result is deterministic. The search is a blocked brute-force one (matrix products), about
-    ``n^2 p`` operations: a few seconds at ``n = 20000`` and ``p = 50`` on two cores.
+    result is deterministic. The search is exact: a k-d tree for a few columns, blocked
+    matrix products (about ``n^2 p`` operations, a few seconds at ``n = 20000`` and ``p = 50``
+    on two cores) for more, the candidates' distances recomputed from the differences either
+    way (``complexity._neighbours``).
 
     See Also
     --------
@@ -172,20 +174,26 @@ def _scale_columns(X: NDArray[np.float64]) -> NDArray[np.float64]:
     return centred / sd
 
 
-@_quiet_overflow
 def _neighbours(X: NDArray[np.float64], y: NDArray[np.float64]) -> float:
+    return _neighbours_and_pairs(X, y)[0]
+
+
+def _neighbours_with_df(X: NDArray[np.float64], y: NDArray[np.float64]) -> tuple[float, float]:
+    value, nbr = _neighbours_and_pairs(X, y)
+    return value, _pair_form_df(nbr[:, None], np.ones(1))
+
+
+@_quiet_overflow
+def _neighbours_and_pairs(
+    X: NDArray[np.float64], y: NDArray[np.float64]
+) -> tuple[float, NDArray[np.intp]]:
+    """First-neighbour estimate and each row's neighbour (one search for both)."""
     n = X.shape[0]
     if n < 2:
         raise ValueError(f"neighbour_variance needs at least 2 rows; got {n}.")
     nbr = nearest_other(_scale_columns(X))
     d = y - y[nbr]
-    return _finite(float(d @ d) / (2.0 * n), "neighbour_variance")
-
-
-def _neighbours_with_df(X: NDArray[np.float64], y: NDArray[np.float64]) -> tuple[float, float]:
-    value = _neighbours(X, y)
-    nbr = nearest_other(_scale_columns(X))
-    return value, _pair_form_df(nbr[:, None], np.ones(1))
+    return _finite(float(d @ d) / (2.0 * n), "neighbour_variance"), nbr
 
 
 def _pair_form(idx: NDArray[np.intp], c: NDArray[np.float64]) -> sp.csr_matrix:
