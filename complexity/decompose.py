@@ -62,7 +62,7 @@ __all__ = [
     "standard_error_text",
 ]
 
-_GROUP_DOUBLES = 4_000_000  # capacities read together: at most this many doubles per array
+_GROUP_DOUBLES = 500_000  # capacities read together: at most this many doubles per array (4 MB)
 
 #: weights of the .632 estimators, rounded as in Efron (1983) and Efron & Tibshirani (1997)
 W632 = 0.632
