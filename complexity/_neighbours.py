@@ -38,7 +38,7 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.spatial import cKDTree  # type: ignore[import-untyped]  # no stubs installed
+from scipy.spatial import cKDTree
 
 __all__ = ["k_nearest", "nearest_other"]
 

@@ -12,7 +12,7 @@ import numbers
 from typing import Any
 
 import numpy as np
-import scipy.sparse as sp  # type: ignore[import-untyped]  # no stubs installed
+import scipy.sparse as sp
 from numpy.typing import ArrayLike, NDArray
 
 from ._neighbours import k_nearest, nearest_other

@@ -7,12 +7,14 @@ per-resample error sums) by :func:`tallies`; the tally is then merged into the r
 computed where the outcomes are (an engine may build it in its worker and send only the tally
 back), and merging is cheap, so the accumulation runs in parallel with the fitting.
 
-Inside a block, small problems use dense passes over a (resamples, points, capacities) buffer
-(two-pass mean and deviations, at most 512 KB at a time); larger ones fold outcome by outcome
-with Welford's update. Memory is O(points x capacities + resamples x capacities) however many
-resamples a sweep runs. The values accumulated are residuals ``prediction - target``; working
-with residuals instead of raw predictions keeps the sums well scaled when y is large and nearly
-constant.
+Inside a block, outcomes are folded in slices: small problems put a slice of resamples into a
+dense (resamples, points, capacities) buffer (at most 512 KB) and summarise it in two passes;
+larger ones fold each outcome at its own points. Both then combine with the running sums by the
+one merge formula of :mod:`complexity._moments` (a single outcome is its case ``n_b = 1``,
+Welford's update), so there is one way of folding a block. Memory is O(points x capacities +
+resamples x capacities) however many resamples a sweep runs. The values accumulated are
+residuals ``prediction - target``; working with residuals instead of raw predictions keeps the
+sums well scaled when y is large and nearly constant.
 
 Block boundaries are a pure function of the resample index and the problem size, never of how
 the work was spread over processes or read back from a checkpoint, and a tally is a pure function
@@ -22,7 +24,6 @@ resumed sweep, and whether the tally was made in a worker or in the main process
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 
@@ -30,6 +31,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ._contract import Outcome
+from ._moments import Counts, merge
+from ._overflow import guard_block, guard_overflow, overflow_limit
 
 __all__ = [
     "PointAccumulator",
@@ -70,103 +73,6 @@ def block_size(n_points: int, n_capacities: int) -> int:
     return max(1, min(_MAX_BLOCK, _BLOCK_DOUBLES // per_resample))
 
 
-# ------------------------------------------------------------------------ the overflow guard
-
-
-def overflow_limit(n_points: int) -> float:
-    """Below this ``|residual|`` no error sum can overflow (slightly under the exact bound).
-
-    Examples
-    --------
-    >>> overflow_limit(1) > 1e76
-    True
-    """
-    return float((np.finfo(np.float64).max / max(n_points, 1)) ** 0.25) * (1.0 - 1e-9)
-
-
-def guard_overflow(outcome: Outcome, n_points: int, big: np.ndarray | None = None) -> Outcome:
-    """Record as failed every capacity whose residuals are too large for the error sums.
-
-    Sums of squared residuals (and of their squares, for standard errors) would overflow to
-    infinity; such a fit is reported as a failure with its size instead of as an inf curve.
-    ``big`` (the largest ``|residual|`` per capacity, NaN where any is NaN) may be given when
-    already known.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from complexity.engine import Outcome
-    >>> o = Outcome(0, 0, np.array([0]), np.array([[1.0, 1e300]]), np.zeros(2))
-    >>> sorted(guard_overflow(o, 10).failures)
-    [1]
-    """
-    res = outcome.residuals
-    limit = overflow_limit(n_points)
-    if big is None:
-        # one pass over the whole array first (a per-column reduction costs 10x more); NaN
-        # propagates (a failed capacity is a NaN column, already recorded as a failure)
-        if res.size == 0 or (res.max() <= limit and res.min() >= -limit):
-            return outcome
-        big = np.maximum(np.max(res, axis=0, initial=0.0), -np.min(res, axis=0, initial=0.0))
-    suspect = ~(big <= limit)  # NaN or close to the bound
-    if outcome.failures:
-        suspect[list(outcome.failures)] = False
-    if not suspect.any():
-        return outcome
-    with np.errstate(over="ignore", invalid="ignore"):
-        bad = suspect & ~np.isfinite(big**4 * float(max(n_points, 1)))
-    if not bad.any():
-        return outcome
-    res, train_mse, failures = res.copy(), outcome.train_mse.copy(), dict(outcome.failures)
-    for c in np.flatnonzero(bad):
-        res[:, c] = np.nan
-        train_mse[c] = np.nan
-        failures.setdefault(
-            int(c),
-            "the fit returned NaN predictions"
-            if np.isnan(big[c])
-            else f"predictions so far from the targets (|prediction - target| up to {big[c]:.3g}) "
-            "that error sums overflow float64",
-        )
-    return dataclasses.replace(outcome, residuals=res, train_mse=train_mse, failures=failures)
-
-
-def guard_block(outcomes: Sequence[Outcome], n_points: int) -> list[Outcome]:
-    """:func:`guard_overflow` for a block of outcomes, with one check for the whole block.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from complexity.engine import Outcome
-    >>> outs = [Outcome(b, b, np.array([0]), np.array([[1.0]]), np.zeros(1)) for b in range(2)]
-    >>> [o.failures for o in guard_block(outs, 10)]
-    [{}, {}]
-    """
-    outcomes = list(outcomes)
-    if len(outcomes) == 1:
-        return [guard_overflow(outcomes[0], n_points)]
-    sizes = [o.test.size for o in outcomes]
-    if not sum(sizes):
-        return outcomes
-    C = outcomes[0].residuals.shape[1]
-    starts = np.cumsum([0, *sizes[:-1]])
-    nonempty = np.array(sizes) > 0
-    stacked = np.concatenate([o.residuals for o in outcomes])
-    top = np.zeros((len(outcomes), C))
-    low = np.zeros((len(outcomes), C))
-    # np.maximum / np.minimum propagate NaN, as np.max does
-    top[nonempty] = np.maximum.reduceat(stacked, starts[nonempty], axis=0)
-    low[nonempty] = np.minimum.reduceat(stacked, starts[nonempty], axis=0)
-    big = np.maximum(np.maximum(top, 0.0), -low)
-    suspect = ~(big <= overflow_limit(n_points))
-    if not suspect.any():
-        return outcomes
-    return [
-        guard_overflow(o, n_points, big[k]) if suspect[k].any() else o
-        for k, o in enumerate(outcomes)
-    ]
-
-
 # ------------------------------------------------------------------------------ block tallies
 
 
@@ -176,8 +82,9 @@ class Tally:
 
     Attributes
     ----------
-    count : ndarray of float, shape (n_points,) or (n_points, n_capacities)
-        How many of the block's resamples scored each point (per capacity once a fit failed).
+    counts : complexity._moments.Counts
+        How many of the block's resamples scored each point, per capacity (read through
+        :attr:`count`).
     mean, m2 : ndarray of shape (n_points, n_capacities)
         The block's mean residual per point and sum of squared deviations from it (0 where the
         count is 0).
@@ -193,7 +100,7 @@ class Tally:
         ``(resample index, {capacity position: message})`` for the resamples with failed fits.
     """
 
-    count: NDArray[np.float64]
+    counts: Counts
     mean: NDArray[np.float64]
     m2: NDArray[np.float64]
     index: NDArray[np.intp]
@@ -205,6 +112,15 @@ class Tally:
     failures: list[tuple[int, dict[int, str]]] = field(default_factory=list)
 
     @property
+    def count(self) -> NDArray[np.float64]:
+        """Resamples of the block whose fit scored each point: shape (n_points, n_capacities).
+
+        Always that shape and meaning; read-only (a broadcast of one column while every fit of
+        the block succeeded).
+        """
+        return self.counts.view()
+
+    @property
     def n_resamples(self) -> int:
         """Number of resamples in the block."""
         return int(self.index.size)
@@ -213,33 +129,6 @@ class Tally:
 def _as_records(a: NDArray[np.float64]) -> NDArray[np.void]:
     """A C-contiguous (rows, k) float array seen as a 1-D array of k-double records."""
     return a.view(np.dtype((np.void, a.itemsize * a.shape[1]))).reshape(a.shape[0])
-
-
-def _merge_moments(
-    count: NDArray[np.float64],
-    mean: NDArray[np.float64],
-    m2: NDArray[np.float64],
-    cnt: NDArray[np.float64],
-    b_mean: NDArray[np.float64],
-    b_m2: NDArray[np.float64],
-) -> NDArray[np.float64]:
-    """Chan et al.'s merge of ``(cnt, b_mean, b_m2)`` into ``(count, mean, m2)`` in place.
-
-    ``M2 = M2_a + M2_b + delta^2 n_a n_b / (n_a + n_b)``; counts broadcast over capacities when
-    they are per point. Returns the merged count.
-    """
-    c_a = count if count.ndim == 2 else count[:, None]
-    c_b = cnt if cnt.ndim == 2 else cnt[:, None]
-    total = c_a + c_b
-    share = np.divide(c_b, total, out=np.zeros(total.shape), where=total > 0)
-    delta = b_mean - mean
-    mean += delta * share
-    delta *= delta
-    delta *= c_a
-    delta *= share
-    delta += b_m2
-    m2 += delta
-    return total if (count.ndim == 2 or cnt.ndim == 2) else total[:, 0].copy()
 
 
 class TallyBuilder:
@@ -267,9 +156,11 @@ class TallyBuilder:
     ) -> None:
         self.n, self.C = n_points, n_capacities
         self.on_outcome = on_outcome
-        self.dense = n_points * n_capacities <= _DENSE_PER_RESAMPLE
-        self.slice = max(1, _BLOCK_DOUBLES // max(n_points * n_capacities, 1))
-        self.count: NDArray[np.float64] = np.zeros(n_points)
+        per_resample = n_points * n_capacities
+        # dense slices while one resample's residuals stay cache-sized, else outcome by outcome
+        self.dense = per_resample <= _DENSE_PER_RESAMPLE
+        self.slice = max(1, _BLOCK_DOUBLES // max(per_resample, 1)) if self.dense else 1
+        self.counts = Counts(n_points, n_capacities)
         self.mean = np.zeros((n_points, n_capacities))
         self.m2 = np.zeros((n_points, n_capacities))
         self.pending: list[Outcome] = []  # dense mode: outcomes waiting for their slice
@@ -287,24 +178,17 @@ class TallyBuilder:
             if len(self.pending) == self.slice:
                 self._flush()
             return
+        sums = None
         if not outcome.failures:
             # the error sums come first; when they are finite with room to spare no residual
             # can trip the overflow guard (max r^4 <= sum r^4), so its own pass is skipped
-            with np.errstate(over="ignore", invalid="ignore"):
-                sq = outcome.residuals * outcome.residuals
-                loss2 = np.einsum("ij,ij->j", sq, sq)
-                safe = bool(np.all(loss2 * float(max(self.n, 1)) < _SAFE_SUM))
-            if safe:
-                self._bookkeeping(outcome)
-                self._welford(outcome, np.einsum("ij->j", sq), loss2)
-                return
-        outcome = guard_overflow(outcome, self.n)
+            sums = _error_sums(outcome.residuals)
+            if not np.all(sums[1] * float(max(self.n, 1)) < _SAFE_SUM):
+                sums = None
+        if sums is None:
+            outcome = guard_overflow(outcome, self.n)
         self._bookkeeping(outcome)
-        if outcome.failures:
-            self._welford_with_failures(outcome)
-        else:
-            sq = outcome.residuals * outcome.residuals
-            self._welford(outcome, np.einsum("ij->j", sq), np.einsum("ij,ij->j", sq, sq))
+        self._fold_rows(outcome, sums)
 
     def _bookkeeping(self, outcome: Outcome) -> None:
         if self.on_outcome is not None:
@@ -315,49 +199,39 @@ class TallyBuilder:
         if outcome.failures:
             self.failures.append((outcome.index, dict(outcome.failures)))
 
-    def _per_capacity(self) -> NDArray[np.float64]:
-        if self.count.ndim == 1:
-            self.count = np.repeat(self.count[:, None], self.C, axis=1)
-        return self.count
-
-    def _welford(
-        self, outcome: Outcome, loss: NDArray[np.float64], loss2: NDArray[np.float64]
+    def _fold_rows(
+        self, outcome: Outcome, sums: tuple[NDArray[np.float64], NDArray[np.float64]] | None
     ) -> None:
+        """Merge one outcome (a count of 1 per scored point) into the block, at its points.
+
+        Plain running sums of r and r^2 would save a few passes (about 20% per outcome at
+        n = 20,000, where the gathers and scatters of the per-point rows dominate either way)
+        but lose M2 to cancellation when residuals sit far from zero with a small spread
+        (tests/test_accumulate.py, adversarial cases), so the merge is used here too.
+        """
         idx, res = outcome.test, outcome.residuals
+        cnt_b: NDArray[np.float64] | float = 1.0
+        n_ok = np.full(self.C, idx.size, dtype=np.int64)
+        if outcome.failures:  # failed capacities are whole NaN columns: count 0 there
+            ok = np.ones(self.C)
+            ok[list(outcome.failures)] = 0.0
+            res = np.where(ok > 0, res, 0.0)
+            self.counts.widen()
+            cnt_b = ok
+            n_ok *= ok.astype(np.int64)
+        if sums is None:
+            sums = _error_sums(res)
+        count = np.take(self.counts.values, idx, axis=0)
         mean = np.take(self.mean, idx, axis=0)
         m2 = np.take(self.m2, idx, axis=0)
-        cnt = np.take(self.count, idx, axis=0)
-        cnt += 1.0
-        self.count[idx] = cnt
-        inv = 1.0 / (cnt if cnt.ndim == 2 else cnt[:, None])
-        delta = res - mean
-        step = delta * inv
-        mean += step
-        np.subtract(res, mean, out=step)
-        step *= delta
-        m2 += step
+        merge(count, mean, m2, cnt_b, res)
         # rows written back as whole records: about twice as fast as 2-D fancy assignment
+        _as_records(self.counts.values)[idx] = _as_records(count)
         _as_records(self.mean)[idx] = _as_records(mean)
         _as_records(self.m2)[idx] = _as_records(m2)
-        self.loss.append(loss)  # column sums by einsum (no slow axis-0 reduction)
-        self.loss2.append(loss2)
-        self.n_ok.append(np.full(self.C, idx.size, dtype=np.int64))
-
-    def _welford_with_failures(self, outcome: Outcome) -> None:
-        idx, res = outcome.test, outcome.residuals
-        ok = np.isfinite(res)  # failed capacities are whole NaN columns
-        count = self._per_capacity()
-        cnt = count[idx] + ok
-        old = self.mean[idx]
-        delta = np.where(ok, res - old, 0.0)
-        new = old + np.divide(delta, cnt, out=np.zeros_like(delta), where=cnt > 0)
-        self.m2[idx] += np.where(ok, delta * (res - new), 0.0)
-        self.mean[idx] = new
-        count[idx] = cnt
-        sq = np.where(ok, res, 0.0) ** 2
-        self.loss.append(np.einsum("ij->j", sq))
-        self.loss2.append(np.einsum("ij,ij->j", sq, sq))
-        self.n_ok.append(ok.sum(axis=0).astype(np.int64))
+        self.loss.append(sums[0])
+        self.loss2.append(sums[1])
+        self.n_ok.append(n_ok)
 
     def _flush(self) -> None:
         """Dense two-pass statistics of the pending outcomes, merged into the block's."""
@@ -445,21 +319,19 @@ class TallyBuilder:
         sizes: NDArray[np.int64],
     ) -> None:
         """Two-pass count, mean and M2 of one dense slice, merged into the block's."""
-        n, C = self.n, self.C
         failed_kc = np.argwhere(fitted == 0.0)
         if failed_kc.size:
-            self._per_capacity()
+            self.counts.widen()
             cnt = scored[:, :, 0].T @ fitted  # sums of 0/1: exact
         else:
-            cnt = scored.sum(axis=0)[:, 0]
-        c2 = cnt if cnt.ndim == 2 else cnt[:, None]
-        s_mean = np.divide(buf.sum(axis=0), c2, out=np.zeros((n, C)), where=c2 > 0)
+            cnt = scored.sum(axis=0)  # (n, 1): every capacity alike
+        s_mean = np.divide(buf.sum(axis=0), cnt, out=np.zeros((self.n, self.C)), where=cnt > 0)
         dev = buf - s_mean
         dev *= scored
         for k, c in failed_kc:
             dev[k, :, c] = 0.0
         s_m2 = np.einsum("knc,knc->nc", dev, dev)
-        self.count = _merge_moments(self.count, self.mean, self.m2, cnt, s_mean, s_m2)
+        merge(self.counts.values, self.mean, self.m2, cnt, s_mean, s_m2)
         sq = np.multiply(buf, buf, out=dev)
         self.loss += list(sq.sum(axis=1))
         self.loss2 += list(np.einsum("knc,knc->kc", sq, sq))
@@ -474,7 +346,7 @@ class TallyBuilder:
             return np.array(values, dtype=dtype).reshape(len(values), C)
 
         return Tally(
-            count=self.count,
+            counts=self.counts,
             mean=self.mean,
             m2=self.m2,
             index=np.array(self.index, dtype=np.intp),
@@ -485,6 +357,13 @@ class TallyBuilder:
             train_mse=rows(self.train, np.float64),
             failures=self.failures,
         )
+
+
+def _error_sums(res: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Per capacity: sum of squared residuals and of their squares (column sums by einsum)."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        sq = res * res
+        return np.einsum("ij->j", sq), np.einsum("ij,ij->j", sq, sq)
 
 
 def tally(outcomes: Iterable[Outcome], n_points: int, n_capacities: int) -> Tally:
@@ -499,7 +378,7 @@ def tally(outcomes: Iterable[Outcome], n_points: int, n_capacities: int) -> Tall
     >>> from complexity.engine import Outcome
     >>> t = tally([Outcome(0, 0, np.array([0, 1]), np.array([[1.0], [2.0]]), np.zeros(1)),
     ...            Outcome(1, 1, np.array([1, 2]), np.array([[4.0], [5.0]]), np.zeros(1))], 3, 1)
-    >>> t.count.tolist(), t.mean[:, 0].tolist(), t.m2[:, 0].tolist(), t.loss[:, 0].tolist()
+    >>> t.count[:, 0].tolist(), t.mean[:, 0].tolist(), t.m2[:, 0].tolist(), t.loss[:, 0].tolist()
     ([1.0, 2.0, 1.0], [1.0, 3.0, 5.0], [0.0, 2.0, 0.0], [5.0, 41.0])
     """
     return next(tallies(outcomes, 0, n_points, n_capacities))
@@ -596,9 +475,7 @@ class PointAccumulator:
     ) -> None:
         self.mean = np.zeros((n_points, n_capacities))
         self.m2 = np.zeros((n_points, n_capacities))
-        # counts (float64: exact for any realistic count, no casts): one per point while every
-        # fit succeeded (all capacities then count alike), per point and capacity after a failure
-        self._count: NDArray[np.float64] = np.zeros(n_points)
+        self._counts = Counts(n_points, n_capacities)
         self._n_points, self._n_capacities = n_points, n_capacities
         self.resample_loss = np.zeros((n_resamples, n_capacities))
         self.resample_n = np.zeros((n_resamples, n_capacities), dtype=np.int64)
@@ -615,11 +492,11 @@ class PointAccumulator:
 
     @property
     def count(self) -> NDArray[np.float64]:
-        """How many resamples scored each point, per capacity (read-only while uniform)."""
-        if self._count.ndim == 2:
-            return self._count
-        shape = (self._count.size, self._n_capacities)
-        return np.broadcast_to(self._count[:, None], shape)
+        """How many resamples scored each point, per capacity: shape (n_points, n_capacities).
+
+        Read-only (a broadcast of one column while every fit succeeded).
+        """
+        return self._counts.view()
 
     def merge(self, t: Tally) -> None:
         """Merge a block's :class:`Tally` into the running statistics.
@@ -635,11 +512,11 @@ class PointAccumulator:
         (2.0, 2.0)
         """
         if self.n_added == 0:  # the first block: merging into zeros would reproduce it exactly
-            self._count, self.mean, self.m2 = t.count.copy(), t.mean.copy(), t.m2.copy()
+            self._counts, self.mean, self.m2 = t.counts.copy(), t.mean.copy(), t.m2.copy()
         else:
-            if t.count.ndim == 2 and self._count.ndim == 1:
-                self._count = np.repeat(self._count[:, None], self._n_capacities, axis=1)
-            self._count = _merge_moments(self._count, self.mean, self.m2, t.count, t.mean, t.m2)
+            if not t.counts.uniform:
+                self._counts.widen()
+            merge(self._counts.values, self.mean, self.m2, t.counts.values, t.mean, t.m2)
         self.resample_loss[t.index] = t.loss
         self.resample_n[t.index] = t.n_ok
         # a replicate may appear twice in a block (K-fold): unbuffered adds

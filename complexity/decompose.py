@@ -62,6 +62,8 @@ __all__ = [
     "standard_error_text",
 ]
 
+_GROUP_DOUBLES = 500_000  # capacities read together: at most this many doubles per array (4 MB)
+
 #: weights of the .632 estimators, rounded as in Efron (1983) and Efron & Tibshirani (1997)
 W632 = 0.632
 W368 = 0.368
@@ -283,6 +285,15 @@ def no_information_error(y: NDArray[np.float64], fitted: NDArray[np.float64]) ->
     return float(np.var(y) + np.var(fitted) + (np.mean(y) - np.mean(fitted)) ** 2)
 
 
+def _no_information_errors(
+    y: NDArray[np.float64] | None, fitted: NDArray[np.float64] | None
+) -> NDArray[np.float64]:
+    """:func:`no_information_error` of every column of ``fitted`` (the same operations)."""
+    assert y is not None and fitted is not None
+    cols = np.ascontiguousarray(np.asarray(fitted, dtype=np.float64).T)
+    return np.var(y) + np.var(cols, axis=1) + (np.mean(y) - np.mean(cols, axis=1)) ** 2
+
+
 def bootstrap_632(err_bar: float, err1: float, gamma: float) -> tuple[float, float]:
     """The .632 and .632+ bootstrap estimates of prediction error.
 
@@ -380,58 +391,78 @@ def curves_table(
     """
     simulated = layout.kind == "simulation"
     notes: list[str] = []
-    reasons: dict[str, list[str]] = {}
-    rows = []
-    # one contiguous row per capacity (the accumulators are points x capacities)
-    count, mean, m2 = (np.ascontiguousarray(a.T) for a in (acc.count, acc.mean, acc.m2))
-    for c in range(len(capacities)):
-        scored = count[c] >= 1
-        every = bool(scored.all())  # the usual case: no selection to copy
-        pick = slice(None) if every else scored
-        pp = _point_values(count[c, pick], mean[c, pick], m2[c, pick])
-        q = None
+    reasons: dict[tuple[str, str], list[str]] = {}
+    C = len(capacities)
+    cols: dict[str, NDArray[Any]] = {
+        k: np.full(C, np.nan) for k in ("train_mse", "test_mse", "test_mse_se", "bias_sq")
+    }
+    for k in ("bias_sq_plus_noise", "variance", "oob_excess"):
+        cols[k] = np.full(C, np.nan)
+    cols["noise"] = np.full(C, float(noise))
+    with_632 = layout.kind == "bootstrap" and not any(v is None for v in (train_mse, y, fitted))
+    if with_632:
+        cols["test_mse_632"] = np.full(C, np.nan)
+        cols["test_mse_632plus"] = np.full(C, np.nan)
+    cols["n_scored"] = np.zeros(C, dtype=np.int64)
+    cols["failed_fits"] = np.asarray(acc.failures.count[:C], dtype=np.int64).copy()
+    if train_mse is not None:
+        cols["train_mse"] = np.asarray(train_mse, dtype=np.float64)[:C].copy()
+    else:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cols["train_mse"] = np.where(acc.train_n > 0, acc.train_sum / acc.train_n, np.nan)
+    gamma = _no_information_errors(y, fitted) if with_632 else None
+    # capacities in groups, each read as contiguous rows (capacity, point); the arithmetic is
+    # elementwise or along rows, so every number equals the one-capacity-at-a-time computation
+    group = max(1, _GROUP_DOUBLES // max(acc.mean.shape[0], 1))
+    for start in range(0, C, group):
+        part = slice(start, min(start + group, C))
+        count, mean, m2 = (
+            np.ascontiguousarray(a[:, part].T) for a in (acc.count, acc.mean, acc.m2)
+        )
+        values = _point_values(count, mean, m2)
+        q_rows = None
         if leverage is not None and not simulated:
-            q = _out_of_sample_leverage(np.asarray(leverage[c], dtype=np.float64)[pick])
-        n_pts = pp["e"].size
-        row: dict[str, Any] = {}
-        if train_mse is not None:
-            row["train_mse"] = float(train_mse[c])
-        else:
-            row["train_mse"] = (
-                float(acc.train_sum[c] / acc.train_n[c]) if acc.train_n[c] else np.nan
-            )
-        err = float(np.mean(pp["e"])) if n_pts else np.nan
-        var, excess, why = _parts(pp, q, noise, layout) if n_pts else (np.nan, np.nan, _ONCE)
-        if not np.isfinite(var):
-            var = np.nan
-        if why:
-            empty = [k for k, v in (("variance", var), ("oob_excess", excess)) if np.isnan(v)]
-            columns = ", ".join(empty) + " and bias_sq" if empty else "bias_sq"
-            reasons.setdefault((columns, why), []).append(str(capacities[c]))
-        nb2 = err - var - excess  # noise + squared bias
-        row["test_mse"] = noise + err if simulated else err
-        row["test_mse_se"] = _test_error_se(acc, c, pp["e"], layout) if n_pts else np.nan
-        row["bias_sq"] = nb2 if simulated else nb2 - noise
-        row["bias_sq_plus_noise"] = nb2 + noise if simulated else nb2
-        row["variance"] = var
-        row["oob_excess"] = excess
-        row["noise"] = noise
-        if (
-            layout.kind == "bootstrap"
-            and train_mse is not None
-            and y is not None
-            and fitted is not None
-        ):
-            if np.isfinite(train_mse[c]) and n_pts:
-                row["test_mse_632"], row["test_mse_632plus"] = bootstrap_632(
-                    float(train_mse[c]), err, no_information_error(y, fitted[:, c])
-                )
+            q_rows = _out_of_sample_leverage(np.asarray(leverage[part], dtype=np.float64))
+        every: NDArray[np.bool_] = np.all(count >= 1, axis=1)  # usual: no selection to copy
+        full_err = np.mean(values["e"], axis=1) if values["e"].shape[1] else None
+        full_se = None
+        if _se_kind(layout) == "bootstrap" and values["e"].shape[1] > 1:
+            full_se = np.std(values["e"], axis=1, ddof=1) / np.sqrt(values["e"].shape[1])
+        for j, c in enumerate(range(part.start, part.stop)):
+            pick = slice(None) if every[j] else count[j] >= 1
+            pp = {k: v[j, pick] for k, v in values.items()}
+            q = None if q_rows is None else q_rows[j, pick]
+            n_pts = pp["e"].size
+            if every[j] and full_err is not None:
+                err = float(full_err[j])
             else:
-                row["test_mse_632"] = row["test_mse_632plus"] = np.nan
-        row["n_scored"] = n_pts
-        row["failed_fits"] = int(acc.failures.count[c])
-        rows.append(row)
-    curves = pd.DataFrame(rows, index=capacity_index(capacities, capacity_name))
+                err = float(np.mean(pp["e"])) if n_pts else np.nan
+            var, excess, why = _parts(pp, q, noise, layout) if n_pts else (np.nan, np.nan, _ONCE)
+            if not np.isfinite(var):
+                var = np.nan
+            if why:
+                empty = [k for k, v in (("variance", var), ("oob_excess", excess)) if np.isnan(v)]
+                columns = ", ".join(empty) + " and bias_sq" if empty else "bias_sq"
+                reasons.setdefault((columns, why), []).append(str(capacities[c]))
+            nb2 = err - var - excess  # noise + squared bias
+            cols["test_mse"][c] = noise + err if simulated else err
+            if not n_pts:
+                se = np.nan
+            elif every[j] and full_se is not None:
+                se = float(full_se[j])
+            else:
+                se = _test_error_se(acc, c, pp["e"], layout)
+            cols["test_mse_se"][c] = se
+            cols["bias_sq"][c] = nb2 if simulated else nb2 - noise
+            cols["bias_sq_plus_noise"][c] = nb2 + noise if simulated else nb2
+            cols["variance"][c] = var
+            cols["oob_excess"][c] = excess
+            if gamma is not None and train_mse is not None and np.isfinite(train_mse[c]) and n_pts:
+                cols["test_mse_632"][c], cols["test_mse_632plus"][c] = bootstrap_632(
+                    float(train_mse[c]), err, float(gamma[c])
+                )
+            cols["n_scored"][c] = n_pts
+    curves = pd.DataFrame(cols, index=capacity_index(capacities, capacity_name))
     for (columns, why), where in reasons.items():
         at = "" if len(where) == len(capacities) else f" ({capacity_name} {', '.join(where)})"
         notes.append(f"{columns} are left empty{at}: {why}.")

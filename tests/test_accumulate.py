@@ -1,5 +1,7 @@
 """Tests for complexity.accumulate: the streaming sums equal the direct computation."""
 
+import warnings
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -190,3 +192,75 @@ def test_block_overflow_guard_equals_the_per_outcome_guard(seed, K, size):
     huge = any(np.any(np.abs(o.residuals[:, [0, 2]]) > 1e78) for o in outcomes)
     if huge:  # (1e78)^4 overflows float64: the guard must have caught it
         assert any(len(o.failures) > len(p.failures) for o, p in zip(each, outcomes))
+
+
+def _adversarial(n, C, B, offset, spread, seed):
+    """Residuals offset + spread * noise; every 7th resample fails at capacity 1 (NaN column)."""
+    rng = np.random.default_rng(seed)
+    res = offset + spread * rng.normal(size=(B, n, C)) * rng.uniform(0.5, 1.5, (1, n, 1))
+    keep = rng.random((B, n)) < 0.4
+    outs = []
+    for b in range(B):
+        test = np.flatnonzero(keep[b])
+        r = res[b, test].copy()
+        failures = {1: "failed"} if b % 7 == 3 else {}
+        if failures:
+            r[:, 1] = np.nan
+        outs.append(Outcome(b, b, test, r, np.zeros(C), failures))
+    scored = keep[:, :, None] & ~((np.arange(B) % 7 == 3)[:, None, None] & (np.arange(C) == 1))
+    return outs, res, scored
+
+
+@pytest.mark.parametrize(
+    "offset, spread",
+    [(0.0, 1.0), (1e8, 1e-3), (-1e12, 1.0), (1e6, 1e-6), (3.0, 1e-12)],
+    ids=["plain", "large-offset-small-spread", "huge-offset", "tiny-spread", "spread-1e-12"],
+)
+@pytest.mark.parametrize("n, K", [(40, 7), (40, 60), (20_000, 4)], ids=["dense", "one", "streamed"])
+def test_moments_match_a_two_pass_reference_on_adversarial_data(n, K, offset, spread):
+    # reference: numpy's two-pass mean and sum of squared deviations of each point's residuals.
+    # Bound (rounding analysis of the pairwise/Welford update, Chan, Golub & LeVeque 1983;
+    # the form below is common practice): with k values, mean within k eps (|mean| + s) and M2
+    # within k eps (M2 + |mean| sqrt(k M2)), s = sqrt(M2 / k). A plain sum of squares would miss
+    # the large-offset cases by a factor of about (offset / spread)^2 eps, far outside it.
+    C, B = 3, 60 if n < 1000 else 12
+    outs, res, scored = _adversarial(n, C, B, offset, spread, seed=n + K)
+    acc = PointAccumulator(n, C, B, B)
+    for start in range(0, B, K):
+        acc.add_block(outs[start : start + K])
+    k = scored.sum(axis=0).astype(float)  # (n, C)
+    np.testing.assert_array_equal(acc.count, k)
+    vals = np.where(scored, res, np.nan)
+    two = k >= 2
+    with warnings.catch_warnings():  # points never scored: NaN, excluded below
+        warnings.simplefilter("ignore", RuntimeWarning)
+        mean = np.nanmean(vals, axis=0)
+        m2 = np.nansum((vals - mean) ** 2, axis=0)
+    eps = np.finfo(np.float64).eps
+    s = np.sqrt(m2 / np.maximum(k, 1))
+    mean_bound = k * eps * (np.abs(mean) + s)
+    m2_bound = k * eps * (m2 + np.abs(mean) * np.sqrt(k * m2)) + 1e-300
+    assert np.all(np.abs(acc.mean - mean)[two] <= mean_bound[two])
+    assert np.all(np.abs(acc.m2 - m2)[two] <= m2_bound[two])
+    assert np.all(acc.m2[k == 1] == 0.0) and np.all(acc.mean[k == 0] == 0.0)
+
+
+@pytest.mark.parametrize("n", [30, 20_000], ids=["dense", "streamed"])
+def test_tally_count_has_one_shape_and_meaning_before_and_after_a_failed_fit(n):
+    # definition (complexity.accumulate.Tally.count): per point and capacity, the block's
+    # resamples whose fit at that capacity scored the point; shape (n_points, n_capacities)
+    # whether or not some fit failed. Reference: counted directly from the outcomes.
+    from complexity.accumulate import tally
+
+    C, B = 3, 6
+    outs, _, scored = _adversarial(n, C, B, 0.0, 1.0, seed=5)
+    clean = [o for o in outs if not o.failures]
+    t_clean, t_failed = tally(clean, n, C), tally(outs, n, C)
+    assert t_clean.count.shape == t_failed.count.shape == (n, C)
+    ok = np.array([not o.failures for o in outs])
+    np.testing.assert_array_equal(t_clean.count, scored[ok].sum(axis=0))
+    np.testing.assert_array_equal(t_failed.count, scored.sum(axis=0))
+    assert (t_failed.count[:, 1] < t_failed.count[:, 0]).any()  # capacity 1 failed once
+    acc = PointAccumulator(n, C, B, B)
+    acc.merge(t_clean)
+    assert acc.count.shape == (n, C)

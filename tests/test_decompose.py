@@ -249,3 +249,40 @@ def test_out_of_bag_error_uses_every_out_of_bag_prediction():
     per_point = np.nanmean((pred - y) ** 2, axis=0)[scored.any(axis=0)]
     assert result.curves["test_mse"].iloc[0] == pytest.approx(per_point.mean(), rel=1e-12)
     assert result.curves["n_scored"].iloc[0] == scored.any(axis=0).sum()
+
+
+@pytest.mark.parametrize("group", [1, 3, 10_000], ids=["one-by-one", "groups-of-3", "all"])
+def test_curves_of_many_capacities_equal_the_per_point_formulas(monkeypatch, group):
+    # METHODS.md §2 formulas (Efron & Tibshirani 1997), from the stored residuals with numpy:
+    # e_i = mean_b d_ib^2, test_mse = mean_i e_i, s_i^2 = var(d_ib, ddof 1), variance = mean s_i^2
+    # (bootstrap), test_mse_se = s(e_i) / sqrt(n'); a capacity that fails on some resamples and
+    # points never scored by some capacities take the selection path. However the capacities
+    # are grouped for reading, the numbers are the same.
+    import complexity.decompose as dec
+
+    monkeypatch.setattr(dec, "_GROUP_DOUBLES", group * 12)
+    rng = np.random.default_rng(4)
+    n, C, B = 12, 7, 9
+    acc = PointAccumulator(n, C, B, B, keep_predictions=True)
+    for b in range(B):
+        test = np.flatnonzero(rng.random(n) < 0.45)
+        res = rng.normal(size=(test.size, C)) * np.arange(1, C + 1)
+        failures = {5: "failed"} if b % 2 else {}
+        res[:, list(failures)] = np.nan
+        acc.add(Outcome(b, b, test, res, np.zeros(C), failures))
+    layout = SplitLayout("bootstrap", n, float(n), 4.0, True, False)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        curves, _ = curves_table(acc, tuple(range(C)), "degree", noise=0.1, layout=layout)
+        d = acc.residuals  # (B, n, C), NaN where not scored
+        e = np.nanmean(d**2, axis=0)
+        s2 = np.nanvar(d, axis=0, ddof=1)
+    for c in range(C):
+        seen = np.isfinite(e[:, c])
+        assert curves["n_scored"].iloc[c] == seen.sum()
+        assert curves["test_mse"].iloc[c] == pytest.approx(e[seen, c].mean(), rel=1e-12)
+        se = e[seen, c].std(ddof=1) / np.sqrt(seen.sum())
+        assert curves["test_mse_se"].iloc[c] == pytest.approx(se, rel=1e-12)
+        two = np.isfinite(s2[:, c])
+        assert curves["variance"].iloc[c] == pytest.approx(s2[two, c].mean(), rel=1e-12)
+    assert not np.isfinite(e[:, 5]).all()  # the selection path was taken
