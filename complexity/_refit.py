@@ -20,6 +20,7 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy import linalg
 
+from ._text import noise_of
 from ._validation import _short_repr, as_seed_sequence, check_option, check_X_y
 from .basis import PolynomialBasis, n_total_degree_terms
 from .exceptions import ExtrapolationWarning
@@ -111,7 +112,7 @@ def _setup(result: SweepResult, X: Any, y: Any) -> _Setup:
     basis = PolynomialBasis(max(degrees), domain=box).fit(Xa)
     p = Xa.shape[1]
     names = data.feature_names or tuple(f"x{j}" for j in range(p))
-    noise = result.noise
+    noise = noise_of(result)
     return _Setup(
         X=Xa,
         y=ya,

@@ -183,3 +183,20 @@ def reader_words(text: str) -> str:
         return _ATTRIBUTE_WORDS.get(match.group(1), "the sections of this report")
 
     return _ATTRIBUTE.sub(words, text)
+
+
+def noise_of(result: Any) -> Any:
+    """The result's noise estimate; a sweep under another loss has none and is refused here.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> noise_of(SimpleNamespace(noise=1.0, metadata={}))
+    1.0
+    """
+    if result.noise is None:
+        raise ValueError(
+            f"this is a {result.metadata.get('loss', 'non-squared-error')} sweep: it has no noise "
+            "estimate, and figures, reports and bands are for squared-error sweeps."
+        )
+    return result.noise

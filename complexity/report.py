@@ -30,7 +30,7 @@ import pandas as pd
 
 from ._figures_base import check_result
 from ._figures_curves import _errors_off_scale, _negative_bias, _negative_bias_words
-from ._text import CURVE_COLUMNS, capacity_words, cautions, ladder_kind, reader_words
+from ._text import CURVE_COLUMNS, capacity_words, cautions, ladder_kind, noise_of, reader_words
 from ._validation import _short_repr, check_X_y
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -166,7 +166,8 @@ def python_call(result: SweepResult) -> str:
     meta = result.metadata
     ladder = meta.get("ladder_repr", "<ladder>")
     plan = meta.get("plan_repr", "<plan>")
-    noise = result.noise.value if result.noise.method == "given" else result.noise.method
+    est = noise_of(result)
+    noise = est.value if est.method == "given" else est.method
     seed = meta.get("random_state")
     if seed is None:
         seed = meta.get("seed_entropy")
@@ -296,7 +297,7 @@ def _data_section(
 
 
 def _noise_section(result: SweepResult, y_units: str | None) -> str:
-    est = result.noise
+    est = noise_of(result)
     sd = math.sqrt(est.value) if est.value >= 0 else math.nan
     unit = f" {y_units}" if y_units else ""
     unit2 = f" ({y_units})²" if y_units else ""
@@ -470,7 +471,7 @@ def render_report(
         ("resamples", meta.get("n_resamples", "")),
         ("ladder", meta.get("ladder_repr", "")),
         ("rule", result.rule),
-        ("noise", result.noise.method),
+        ("noise", noise_of(result).method),
         ("engine", meta.get("engine", "")),
         ("sweep time", f"{meta.get('run_seconds', '?')} s"),
         ("library versions", ", ".join(f"{k} {v}" for k, v in versions.items())),

@@ -76,8 +76,9 @@ class SweepResult:
         Indexed by rule name: ``capacity`` and a one-line ``reason``.
     stability : pandas.Series
         Share of replicates in which each capacity would have been chosen by ``rule``.
-    noise : NoiseEstimate
-        The noise variance used to split bias² from noise, with its method.
+    noise : NoiseEstimate or None
+        The noise variance used to split bias² from noise, with its method (None for a sweep
+        under another loss, whose split is stated in ``metadata["loss_split"]``).
     failures : pandas.DataFrame
         Per capacity with failed fits: ``count`` and ``first_message``.
     notes : list of str
@@ -107,7 +108,7 @@ class SweepResult:
     rule: str
     rules: pd.DataFrame
     stability: pd.Series
-    noise: NoiseEstimate
+    noise: NoiseEstimate | None
     failures: pd.DataFrame
     notes: list[str] = field(default_factory=list)
     metadata: dict[str, Any] = field(default_factory=dict)
@@ -152,19 +153,13 @@ class SweepResult:
         True
         """
         name = self.capacity_name
-        shown = [
-            c
-            for c in CURVE_COLUMNS
-            if c in self.curves and (c != "oob_excess" or self.curves[c].fillna(0).any())
-        ]
-        extra = [c for c in ("loocv", "aicc", "bic") if c in self.curves]
-        table = self.curves[shown + extra].copy()
+        table = self.curves[self._shown_columns()].copy()
         table["chosen"] = self.stability.reindex(self.curves.index).to_numpy()
         meta = self.metadata
         lines = [
             f"Capacity sweep: {meta.get('ladder_repr', '')} on {meta.get('n_samples', '?')} rows, "
             f"plan {meta.get('plan_repr', '')}, seed {meta.get('seed_entropy', '?')}",
-            f"Noise variance {self.noise.value:.4g} ({self.noise.method}: {self.noise.detail})",
+            self._noise_line(),
             "",
             table.to_string(float_format=lambda v: f"{v:.4g}"),
             "",
@@ -199,6 +194,107 @@ class SweepResult:
         lines += ["", caution_text(ladder_kind(self.metadata))]
         return "\n".join(lines)
 
+    @property
+    def loss(self) -> str:
+        """The loss the test-error curve is measured in (``"squared-error"`` unless chosen).
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5), random_state=0).loss
+        'squared-error'
+        """
+        return str(self.metadata.get("loss", "squared-error"))
+
+    def _shown_columns(self) -> list[str]:
+        if self.loss != "squared-error":
+            return [c for c in self.curves.columns if c != "n_scored"]
+        shown = [
+            c
+            for c in CURVE_COLUMNS
+            if c in self.curves and (c != "oob_excess" or self.curves[c].fillna(0).any())
+        ]
+        return shown + [c for c in ("loocv", "aicc", "bic") if c in self.curves]
+
+    def _noise_line(self) -> str:
+        if self.noise is None:
+            return f"Loss {self.loss}: {self.metadata.get('loss_split', '')}"
+        return f"Noise variance {self.noise.value:.4g} ({self.noise.method}: {self.noise.detail})"
+
+    def _squared_error_only(self, what: str) -> None:
+        if self.loss != "squared-error":
+            raise ValueError(
+                f"{what} are drawn for squared-error sweeps; this result's loss is "
+                f"{self.loss!r}. Its curves are in result.curves and result.summary()."
+            )
+
+    def predict(
+        self,
+        x_new: Any,
+        X: Any,
+        y: Any,
+        *,
+        capacity: Any = None,
+        interval: str = "confidence",
+        level: float = 0.95,
+        **options: Any,
+    ) -> pd.DataFrame:
+        """Predictions of the chosen polynomial with a band; see :func:`complexity.bands.predict`.
+
+        ``X`` and ``y`` are the data this result was swept on (a result keeps the curves, not the
+        data). ``interval`` is ``"confidence"`` (the mean response), ``"prediction"`` (one new
+        reading) or ``"selection"`` (a band that includes choosing the degree). Valid only inside
+        the measured range; validate against reference standards; local codes and licensed
+        practice decide.
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> X, y = cx.datasets.pressure_sensor()
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 4)), X, y, plan=cx.Bootstrap(10), random_state=0)
+        >>> band = r.predict([20.0, 30.0], X, y, interval="prediction")
+        >>> bool((band["upper"] > band["lower"]).all())
+        True
+        """
+        from .bands import predict
+
+        return predict(
+            self, X, y, x_new, capacity=capacity, interval=interval, level=level, **options
+        )
+
+    def inverse_predict(
+        self,
+        y_new: Any,
+        X: Any,
+        y: Any,
+        *,
+        capacity: Any = None,
+        level: float = 0.95,
+        **options: Any,
+    ) -> pd.DataFrame:
+        """The input at which the chosen curve gives ``y_new``, with its interval.
+
+        See :func:`complexity.bands.inverse_predict` (calibration use; no extrapolation beyond
+        the measured range; validate against reference standards; local codes and licensed
+        practice decide).
+
+        Examples
+        --------
+        >>> import complexity as cx
+        >>> import numpy as np
+        >>> x = np.linspace(0.0, 10.0, 40)  # synthetic: a gauge reading rising with the load
+        >>> y = 2.0 + 0.5 * x + np.random.default_rng(1).normal(0, 0.05, 40)
+        >>> r = cx.sweep(cx.PolynomialLadder(range(0, 3)), x, y, plan=cx.Bootstrap(20),
+        ...              random_state=0)
+        >>> x0 = r.inverse_predict([4.5], x, y)
+        >>> round(float(x0["estimate"].iloc[0]), 1)
+        5.0
+        """
+        from .bands import inverse_predict
+
+        return inverse_predict(self, X, y, y_new, capacity=capacity, level=level, **options)
+
     def __repr__(self) -> str:
         return (
             f"<SweepResult: {self.capacity_name} {list(self.curves.index)}, recommended "
@@ -213,7 +309,7 @@ class SweepResult:
             f"<div><p><b>Recommended {html.escape(self.capacity_name)}: "
             f"{html.escape(str(self.recommended))}</b> (rule <code>{html.escape(self.rule)}</code>: "
             f"{reason})</p>"
-            f"<p>Noise variance {self.noise.value:.4g} ({html.escape(self.noise.method)})</p>"
+            f"<p>{html.escape(self._noise_line())}</p>"
             '<div style="overflow-x:auto;max-width:100%">'
             f"{self.curves[shown].to_html(float_format=lambda v: f'{v:.4g}')}</div>"
             f"{'<ul>' + notes + '</ul>' if notes else ''}"
@@ -232,6 +328,7 @@ class SweepResult:
         >>> r = cx.sweep(cx.PolynomialLadder(range(0, 4)), X, y, plan=cx.Bootstrap(10), random_state=0)
         >>> fig = r.plot("errors", y_units="kPa")
         """
+        self._squared_error_only("figures")
         from .plot import plot
 
         return plot(self, view, **options)
@@ -248,6 +345,7 @@ class SweepResult:
         >>> r.report(pathlib.Path(tempfile.mkdtemp()) / "r.html", X=X, y=y).exists()
         True
         """
+        self._squared_error_only("HTML reports")
         from .report import write_report
 
         return write_report(self, path, **options)
@@ -273,7 +371,7 @@ class SweepResult:
                 for r, row in self.rules.iterrows()
             ],
             "stability": [_plain(v) for v in self.stability.tolist()],
-            "noise": self.noise.to_dict(),
+            "noise": None if self.noise is None else self.noise.to_dict(),
             "failures": [
                 {
                     "capacity": _plain(cap),
@@ -417,7 +515,7 @@ def load_result(path: str | Path) -> SweepResult:
         rule=doc["rule"],
         rules=rules,
         stability=stability,
-        noise=NoiseEstimate.from_dict(doc["noise"]),
+        noise=None if doc["noise"] is None else NoiseEstimate.from_dict(doc["noise"]),
         failures=failures,
         notes=list(doc["notes"]),
         metadata=doc["metadata"],

@@ -11,6 +11,7 @@ import os
 import sys
 import time
 import warnings
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -18,6 +19,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from ._contract import Engine, FullFit, Problem
+from ._loss_result import is_loss_sweep, loss_sweep
 from ._progress import FitCounter
 from ._validation import (
     _short_repr,
@@ -450,6 +452,7 @@ def sweep(
     groups: ArrayLike | None = None,
     sample_weight: ArrayLike | None = None,
     checkpoint: str | os.PathLike[str] | None = None,
+    loss: str | Callable[..., Any] = "squared-error",
 ) -> SweepResult:
     """Sweep a capacity ladder over resampled training sets and recommend a capacity.
 
@@ -491,6 +494,15 @@ def sweep(
         result is bit-identical to an uninterrupted run. A folder written by a different sweep
         (other data, ladder, plan, seed, engine or library version) is refused. See
         :mod:`complexity.checkpoint`.
+    loss : str or callable, default="squared-error"
+        What the test-error curve measures: "squared-error" (the decomposition above),
+        "absolute-error", "log-loss", "brier", "zero-one", a scikit-learn scorer name or a
+        scorer callable (the loss is then minus the score, lower is better). A ladder whose
+        estimator is a classifier takes "zero-one" unless told otherwise. Under another loss the
+        curves hold ``test_loss``, ``test_loss_se``, ``train_loss`` and the published split of
+        that loss where one exists (Brier: per class; 0-1: Domingos 2000); see
+        :mod:`complexity.losses`. Such sweeps use the generic engine and data plans, and take
+        rule "min" or "one-se".
 
     Returns
     -------
@@ -513,6 +525,24 @@ def sweep(
     """
     started = time.perf_counter()
     _check_arguments(ladder, rule, n_jobs, progress, keep_predictions)
+    if is_loss_sweep(ladder, loss):
+        return loss_sweep(
+            ladder,
+            X,
+            y,
+            plan=as_plan(plan) if plan is not None else None,
+            loss=loss,
+            rule=rule,
+            n_jobs=n_jobs,
+            random_state=random_state,
+            groups=groups,
+            noise=noise,
+            engine=engine,
+            keep_predictions=keep_predictions,
+            sample_weight=sample_weight,
+            checkpoint=checkpoint,
+            progress=progress,
+        )
     given_plan = as_plan(plan) if plan is not None else None
     root = seed_for(checkpoint, random_state)  # resuming without a seed reuses the stored one
 
