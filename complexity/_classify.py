@@ -23,11 +23,12 @@ import numpy as np
 import pandas as pd
 from joblib import Parallel, delayed, effective_n_jobs
 from numpy.typing import ArrayLike, NDArray
-from sklearn.base import clone, is_classifier
+from sklearn.base import is_classifier
 
 from . import losses as L
 from ._labels import capacity_index
 from ._validation import _short_repr, as_seed_sequence, check_n_jobs, check_X, check_y
+from .engine.generic import _message, _random_state_keys, _seed_estimator
 from .ladders import Ladder
 from .plans import (
     STREAM_ESTIMATOR,
@@ -211,35 +212,6 @@ class _Fit:
     proba: NDArray[np.float64] | None = None  # probabilities in the full class order (brier)
     score_loss: float = float("nan")  # minus the scorer's score (scorers)
     failure: str = ""
-
-
-def _random_state_keys(model: Any) -> list[str]:
-    """The ``random_state`` parameters of ``model`` left as None, in sorted order."""
-    params = model.get_params(deep=True)
-    return sorted(
-        k
-        for k, v in params.items()
-        if (k == "random_state" or k.endswith("__random_state")) and v is None
-    )
-
-
-def _seed_estimator(model: Any, seed: np.random.SeedSequence, keys: list[str] | None = None) -> Any:
-    """Clone ``model``; set each ``random_state`` left as None to an int drawn from ``seed``.
-
-    The generic engine's scheme (sorted keys, one ``integers(0, 2**31 - 1)`` draw each), kept
-    here so this module does not depend on the engine's internals.
-    """
-    est = clone(model)
-    keys = _random_state_keys(est) if keys is None else keys
-    if keys:
-        draws = np.random.default_rng(seed).integers(0, 2**31 - 1, size=len(keys))
-        est.set_params(**{k: int(d) for k, d in zip(keys, draws)})
-    return est
-
-
-def _message(exc: BaseException) -> str:
-    text = str(exc).strip().splitlines()
-    return f"{type(exc).__name__}: {text[0] if text else ''}".rstrip(": ")
 
 
 def _score(
