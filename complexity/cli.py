@@ -144,6 +144,9 @@ def _write_outputs(
         table["share_chosen"] = result.stability.reindex(result.curves.index).to_numpy()
         table.to_csv(args.curves_csv)
         written.append(f"curves (CSV): {args.curves_csv}")
+    if args.bands is not None:
+        _write_bands(result, X, y, args.bands)
+        written.append(f"bands of the chosen fit (CSV): {args.bands}")
     if args.png is not None:
         from .plot import plot
 
@@ -165,6 +168,39 @@ def _write_outputs(
             result.report(args.report, X=X, y=y, command=command, **units)
         written.append(f"report (HTML): {args.report}")
     return written
+
+
+def _write_bands(result: Any, X: Any, y: Any, path: Path) -> None:
+    """The chosen polynomial on 101 points across the measured range, with both t-based bands."""
+    if result.metadata.get("ladder", {}).get("kind") != "polynomial" or X.shape[1] != 1:
+        raise InputError(
+            "--bands needs a polynomial sweep (--degrees) of one predictor; drop --bands here"
+        )
+    import numpy as np
+    import pandas as pd
+
+    from .bands import CAUTION, predict
+
+    low, high = result.metadata["x_range"][0]
+    grid = np.linspace(low, high, 101)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        conf = predict(result, X, y, grid, interval="confidence")
+        pred = predict(result, X, y, grid, interval="prediction")
+    table = pd.DataFrame(
+        {
+            str(X.columns[0]) if hasattr(X, "columns") else "x": grid,
+            "estimate": conf["estimate"].to_numpy(),
+            "confidence_lower": conf["lower"].to_numpy(),
+            "confidence_upper": conf["upper"].to_numpy(),
+            "prediction_lower": pred["lower"].to_numpy(),
+            "prediction_upper": pred["upper"].to_numpy(),
+        }
+    )
+    with open(path, "w", encoding="utf-8", newline="") as handle:
+        degree = conf.attrs.get("capacity", result.recommended)
+        handle.write(f"# degree {degree}, 95% t-based bands (least squares). {CAUTION}\n")
+        table.to_csv(handle, index=False)
 
 
 def _demo(args: argparse.Namespace, command: str) -> int:
@@ -212,6 +248,7 @@ def _sweep_csv(args: argparse.Namespace, command: str) -> int:
     _check_output(args.save_result, "--save-result", (".json",))
     _check_output(args.curves_csv, "--curves-csv", (".csv",))
     _check_output(args.png, "--png", (".png",))
+    _check_output(args.bands, "--bands", (".csv",))
     if args.repeats is not None and args.folds is None:
         raise InputError("--repeats goes with --folds (repeated K-fold); drop it or add --folds K")
 
@@ -489,6 +526,14 @@ def _parser() -> argparse.ArgumentParser:
     )
     out.add_argument(
         "--curves-csv", type=Path, default=None, metavar="FILE.csv", help="the curves table as CSV"
+    )
+    out.add_argument(
+        "--bands",
+        type=Path,
+        default=None,
+        metavar="FILE.csv",
+        help="the chosen polynomial across the measured range with 95%% confidence and "
+        "prediction bands (one predictor, --degrees)",
     )
     out.add_argument("--png", type=Path, default=None, metavar="FILE.png", help="one figure as PNG")
     out.add_argument(

@@ -439,3 +439,51 @@ def test_backslash_t_from_a_shell_leaks_no_parser_warning(diabetes_frame, tmp_pa
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr == ""
     assert "Recommended" in proc.stdout
+
+
+def test_bands_file_equals_the_statsmodels_bands(tmp_path):
+    import statsmodels.api as sm
+
+    # synthetic calibration data; the chosen degree is read back from the file's first line
+    rng = np.random.default_rng(7)
+    load = np.repeat(np.linspace(0.0, 10.0, 11), 3)
+    reading = 2.0 + 0.5 * load + 0.01 * load**2 + rng.normal(0, 0.05, load.size)
+    data = tmp_path / "cal.csv"
+    pd.DataFrame({"load": load, "reading": reading}).to_csv(data, index=False)
+    out = tmp_path / "bands.csv"
+    code = main(
+        [
+            "sweep",
+            str(data),
+            "--target",
+            "reading",
+            "--degrees",
+            "0-4",
+            "--bands",
+            str(out),
+            "--quiet",
+        ]
+    )
+    assert code == 0
+    first = out.read_text(encoding="utf-8").splitlines()[0]
+    assert "no extrapolation" in first and "reference standards" in first
+    degree = int(first.split()[2].rstrip(","))
+    table = pd.read_csv(out, comment="#")
+    # reference library: statsmodels OLS on the raw power design (well conditioned on 0..10 at
+    # these degrees), get_prediction().summary_frame() at the same points
+    powers = lambda x: np.vander(x, degree + 1, increasing=True)  # noqa: E731
+    fit = sm.OLS(reading, powers(load)).fit()
+    ref = fit.get_prediction(powers(table["load"].to_numpy())).summary_frame(alpha=0.05)
+    np.testing.assert_allclose(table["estimate"], ref["mean"], rtol=1e-10)
+    np.testing.assert_allclose(table["confidence_lower"], ref["mean_ci_lower"], rtol=1e-10)
+    np.testing.assert_allclose(table["prediction_upper"], ref["obs_ci_upper"], rtol=1e-10)
+    assert table["load"].min() == 0.0 and table["load"].max() == 10.0  # the measured range only
+
+
+def test_bands_needs_a_polynomial_sweep(tmp_path, capsys):
+    data = tmp_path / "two.csv"
+    rng = np.random.default_rng(0)
+    pd.DataFrame(rng.normal(size=(30, 3)), columns=["a", "b", "y"]).to_csv(data, index=False)
+    code = main(["sweep", str(data), "--target", "y", "--bands", str(tmp_path / "b.csv")])
+    assert code != 0
+    assert "--bands needs a polynomial sweep" in capsys.readouterr().err
