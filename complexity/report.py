@@ -30,6 +30,7 @@ import pandas as pd
 
 from ._figures_base import check_result
 from ._figures_curves import _errors_off_scale, _negative_bias, _negative_bias_words
+from ._report_calibration import calibration_section
 from ._text import CURVE_COLUMNS, capacity_words, cautions, ladder_kind, noise_of, reader_words
 from ._validation import _short_repr, check_X_y
 
@@ -483,6 +484,9 @@ def render_report(
     if command:
         repro_html += f"<p>The command line:</p><pre>{_esc(command)}</pre>"
     made = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    calibration = calibration_section(
+        result, X, y, table=_table, figure=_figure_html, esc=_esc, y_units=y_units
+    )
 
     return f"""<!DOCTYPE html>
 <html lang="en">
@@ -519,6 +523,8 @@ def render_report(
 {failures}
 {notes}
 </section>
+
+{calibration}
 
 <section id="data">
 <h2>The data</h2>

@@ -113,6 +113,7 @@ def test_report_parses_and_embeds_every_figure(page, result):
     expected = ["errors", "parts", "fits", "stability"]
     if any("cond" in c or "coef" in c for c in result.curves.columns):
         expected.append("conditioning")
+    expected.append("profile")  # the calibration section: a polynomial sweep given its data
     assert [a["alt"] for a in images] == [f"{v} figure" for v in expected]
     for attrs in images:
         prefix = "data:image/png;base64,"
@@ -336,3 +337,23 @@ def test_feature_count_report_names_the_chosen_predictors(tmp_path):
     assert "Predictors in the chosen model" in html_text
     first = list(X.columns[: result.recommended])
     assert f"Every resample included: {', '.join(first)}." in html_text
+
+
+def test_calibration_section_bands_match_the_bands_module(result):
+    # the section's numbers are the bands module's own (checked there against statsmodels)
+    from complexity import bands, datasets
+    from complexity.report import render_report
+
+    X, y = datasets.pressure_sensor()
+    page = render_report(result, X=X, y=y, band_resamples=5)
+    assert 'id="calibration"' in page and "no extrapolation" in page
+    low, high = result.metadata["x_range"][0]
+    band = bands.predict(result, X, y, [low, high], interval="prediction")
+    for value in band["upper"]:
+        assert f"{value:.4g}" in page
+
+
+def test_no_calibration_section_without_the_data(result):
+    from complexity.report import render_report
+
+    assert 'id="calibration"' not in render_report(result, band_resamples=5)
