@@ -58,7 +58,7 @@ def _split(model: Any) -> tuple[Any, bool] | None:
     if len(steps) != 2 or type(steps[0]) is not StandardScaler or type(steps[1]) is not Ridge:
         return None
     scaler = steps[0]
-    if scaler.get_params().get("copy", True) is not True:  # with copy=False X would be changed
+    if getattr(scaler, "copy", True) is not True:  # with copy=False X would be changed
         return None
     return steps[1], bool(scaler.with_std)
 
@@ -96,8 +96,8 @@ def ridge_spec(problem: Problem) -> RidgeSpec | None:
         if parts is None:
             return None
         ridge, scale = parts
-        params = ridge.get_params()
-        if any(params.get(k) != v for k, v in _FIXED.items()):
+        # attributes, not get_params (which inspects signatures: slow for long ladders)
+        if any(getattr(ridge, k, None) is not v for k, v in _FIXED.items()):
             return None
         alpha = _alpha(ridge)
         if alpha is None:
