@@ -185,7 +185,13 @@ def python_call(result: SweepResult) -> str:
         f"rule={result.rule!r}",
         f"random_state={seed!r}",
     ]
-    if meta.get("engine") not in (None, "auto", "exact", "generic"):  # pragma: no cover
+    if meta.get("engine") not in (
+        None,
+        "auto",
+        "exact",
+        "exact-ridge",
+        "generic",
+    ):  # pragma: no cover
         parts.append(f"engine={meta['engine']!r}")
     return "cx.sweep(" + ", ".join(parts) + ")"
 

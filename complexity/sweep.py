@@ -34,6 +34,7 @@ from .checkpoint import resume, seed_for
 from .decompose import curves_table, relation, replicate_errors, standard_error_text
 from .engine import generic as generic_engine
 from .engine import linear as linear_engine
+from .engine import ridge as ridge_engine
 from .exceptions import CapacityWarning, SweepFailedError
 from .ladders import Ladder
 from .noise import NOT_REPLICATES, NoiseEstimate, check_against_curve, estimate_noise
@@ -53,16 +54,20 @@ def _fits_exact(problem: Problem) -> bool:
 
 def _choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:
     check_option("engine", engine, ENGINES)
-    fits_exact = _fits_exact(problem)
-    if engine == "exact" and not fits_exact:
+    if engine == "generic":
+        return generic_engine, "generic"
+    if _fits_exact(problem):
+        return linear_engine, "exact"
+    if ridge_engine.supports(problem):
+        return ridge_engine, "exact-ridge"
+    if engine == "exact":
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
-            f"the default estimator) without sample weights; got {problem.ladder!r}. "
+            f"the default estimator) or a ParamLadder over Ridge(alpha) (optionally after one "
+            f"StandardScaler), without sample weights; got {problem.ladder!r}. "
             "Use engine='auto' or 'generic'."
         )
-    if engine == "generic" or not fits_exact:
-        return generic_engine, "generic"
-    return linear_engine, "exact"
+    return generic_engine, "generic"
 
 
 def _check_weight_support(models: list[Any]) -> None:
@@ -145,8 +150,10 @@ def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.nd
     """
     if full is None:
         return None
-    if engine_used == "exact":
+    if engine_used in ("exact", "exact-ridge"):
         return full.leverage
+    if ridge_engine.supports(problem):  # the ridge hat matrix, as the ridge engine uses it
+        return ridge_engine.fit_full(problem).leverage
     if not _fits_exact(problem):
         return None
     with warnings.catch_warnings():
