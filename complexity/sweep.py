@@ -146,14 +146,14 @@ def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.nd
     """Hat-matrix diagonals of the full-data least-squares fits, whichever engine ran.
 
     The decomposition uses them for the closed-form variance of a point's average prediction, so
-    the generic engine on a least-squares ladder gets the same numbers as the exact one.
+    the generic engine on a least-squares ladder gets the same numbers as the exact one. Ridge
+    fits get none: for them sigma² h / (1 - h) is only an upper bound on that variance (the
+    penalty shrinks it), so their variance comes from the resampling spread like any estimator's.
     """
-    if full is None:
+    if full is None or engine_used == "exact-ridge":
         return None
-    if engine_used in ("exact", "exact-ridge"):
+    if engine_used == "exact":
         return full.leverage
-    if ridge_engine.supports(problem):  # the ridge hat matrix, as the ridge engine uses it
-        return ridge_engine.fit_full(problem).leverage
     if not _fits_exact(problem):
         return None
     with warnings.catch_warnings():
