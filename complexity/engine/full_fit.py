@@ -304,13 +304,14 @@ def variance_leverage(problem: Problem) -> NDArray[np.float64]:
     >>> bool(np.allclose(variance_leverage(problem(np.ones(6))), fit_full(problem(None)).leverage))
     True
     """
-    full = fit_full(problem)
-    assert full.leverage is not None
     rows = _rows(problem)
     if rows.root is None:
+        full = fit_full(problem)
+        assert full.leverage is not None
         return full.leverage
     design = design_of(problem)
-    assert design is not None and problem.X is not None
+    if design is None or problem.X is None:
+        raise ValueError(not_served(problem))
     Z = design.transform(problem.X)
     # the fit's factor F_k = R_k^{-1} of the scaled rows: U = Z F_k has z_i' M^-1 z_j = u_i . u_j
     with single_blas():
@@ -320,9 +321,9 @@ def variance_leverage(problem: Problem) -> NDArray[np.float64]:
         )
         w = np.zeros(Z.shape[0])
         w[rows.keep] = rows.weight
-        out = np.full_like(full.leverage, np.nan)
+        out = np.full((len(design.n_columns), Z.shape[0]), np.nan)
         for c, k in enumerate(design.n_columns):
-            if not np.isfinite(full.leverage[c]).all():
+            if fit.rank_deficient[c]:  # a failure of the full-data fit (fit_full)
                 continue
             U = Z[:, :k] @ fit.cov_factor[c, :k, :k]
             B = (U * (w**2)[:, None]).T @ U  # F' N F
