@@ -327,7 +327,7 @@ def variance_leverage(problem: Problem) -> NDArray[np.float64]:
                 continue
             U = Z[:, :k] @ fit.cov_factor[c, :k, :k]
             B = (U * (w**2)[:, None]).T @ U  # F' N F
-            a = np.einsum("ij,jk,ik->i", U, B, U)
+            a = np.sum((U @ B) * U, axis=1)
             h = w * np.sum(U**2, axis=1)
             with np.errstate(divide="ignore", invalid="ignore"):
                 q = (a - h**2) / (1.0 - h) ** 2
