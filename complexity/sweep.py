@@ -64,7 +64,7 @@ def _choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
             f"the default estimator) or a ParamLadder over Ridge(alpha) (optionally after one "
-            f"StandardScaler), without sample weights; got {problem.ladder!r}. "
+            f"StandardScaler); got {problem.ladder!r}. "
             "Use engine='auto' or 'generic'."
         )
     return generic_engine, "generic"
@@ -152,13 +152,14 @@ def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.nd
     """
     if full is None or engine_used == "exact-ridge":
         return None
-    if engine_used == "exact":
+    if engine_used == "exact" and problem.sample_weight is None:
         return full.leverage
     if not _fits_exact(problem):
         return None
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # the engine's own warnings were given by its run
-        return linear_engine.fit_full(problem).leverage
+        # weighted fits: the leverage whose h/(1-h) is their out-of-sample variance factor
+        return linear_engine.variance_leverage(problem)
 
 
 def _stability(
@@ -494,7 +495,8 @@ def sweep(
     groups : array-like, optional
         Group labels passed to a group-aware scikit-learn splitter.
     sample_weight : array-like, optional
-        Per-row weights passed to the estimator's ``fit`` (generic engine).
+        Per-row weights passed to the estimator's ``fit`` (the exact engine fits weighted least
+        squares with them); test and training errors are scored unweighted.
     checkpoint : str or os.PathLike, optional
         A folder where every finished resample is stored as it completes. Rerunning the same call
         after an interruption reads the finished resamples back and fits only the rest; the

@@ -19,7 +19,8 @@ __all__ = ["design_of", "not_served", "rank_message", "supports"]
 def design_of(problem: Problem) -> NestedDesign | None:
     """The ladder's nested design, fixed from ``problem.design_X``; None without one.
 
-    Sample weights are not served by the exact engine (None then too).
+    Sample weights are served: the engine multiplies them into every training weight
+    (weighted least squares, :mod:`complexity.engine.linear`).
 
     Examples
     --------
@@ -33,8 +34,6 @@ def design_of(problem: Problem) -> NestedDesign | None:
     >>> design_of(problem).n_columns
     (1, 2, 3)
     """
-    if problem.sample_weight is not None:
-        return None
     design_X = np.asarray(problem.design_X, dtype=np.float64)
     if design_X.ndim == 1:
         design_X = design_X[:, None]
@@ -60,11 +59,11 @@ def supports(problem: Problem) -> bool:
 
 
 def not_served(problem: Problem) -> str:
-    """Why the exact engine refuses ``problem`` (its ladder has no design, or weights are given)."""
+    """Why the exact engine refuses ``problem`` (its ladder has no least-squares design)."""
     return (
         f"the exact engine cannot serve {problem.ladder!r} here: it needs a ladder with a "
         "least-squares design (PolynomialLadder, or FeatureLadder with a fixed order and the "
-        "default estimator) and no sample weights."
+        "default estimator)."
     )
 
 

@@ -7,6 +7,14 @@ resamples gets its Gram matrices from one matrix product and small per-resample 
 factorisations, with a QR fallback where a Gram matrix is badly conditioned (the numerics and
 their notation: :mod:`complexity.engine._batched`). Chunks go to joblib through
 :mod:`complexity.engine._dispatch`; the fit on all data is :mod:`complexity.engine.full_fit`.
+
+Sample weights w (weighted least squares): a training set's weight of row i becomes
+c_i w_i (its multiplicity times its weight), so the Gram matrices still come from one product
+per chunk and each fit equals scikit-learn's ``LinearRegression().fit(X[train], y[train],
+sample_weight=w[train])``. What is scored stays as the generic engine scores it: residuals at
+the evaluation points unweighted, and the training error the plain mean of squared residuals
+over the training rows (with multiplicity), sum_i c_i e_i^2 / sum_i c_i, computed from the
+residuals themselves (the weighted RSS of the tail sums is a different quantity).
 """
 
 from __future__ import annotations
@@ -38,9 +46,9 @@ from ._batched import (
 )
 from ._dispatch import call_with_single_blas, group_by_index, map_chunks, single_blas
 from ._exact_problem import design_of, not_served, rank_message, supports
-from .full_fit import fit_full
+from .full_fit import fit_full, variance_leverage
 
-__all__ = ["block_size", "fit_full", "run", "run_tallies", "supports"]
+__all__ = ["block_size", "fit_full", "run", "run_tallies", "supports", "variance_leverage"]
 
 _GRAM_CONDITION_LIMIT = 1e6  # above this (upper bound of cond(G_c)) a resample is refit by QR
 _RSS_CANCELLATION = 1e-4  # RSS below this share of y'Cy is recomputed from residuals
@@ -107,8 +115,9 @@ class _ChunkFits:
 
     pos: NDArray[np.intp]  # row of each resample in the chunk's arrays
     counts: NDArray[np.float64]  # (S, n) multiplicity of each row in each training set
+    weights: NDArray[np.float64]  # (S, n) training weight: counts, times the sample weights
     A1: NDArray[np.float64]  # (S, P + 1, C): residuals of all rows = Q0_target @ A1[s]
-    rss: NDArray[np.float64]  # (S, C) training RSS
+    rss: NDArray[np.float64]  # (S, C) training sum of squared residuals (unweighted)
     distinct: NDArray[np.intp]  # (S,) distinct training rows
     pv: NDArray[np.intp]  # (S,) usable basis columns
     every_row: NDArray[np.float64] | None  # (S, n, C) residuals at every row (small problems)
@@ -126,8 +135,10 @@ def _chunk_fits(
     counts = np.zeros((S, n))
     for r, s in zip(chunk, pos):
         counts[s] = r.counts if r.counts is not None else np.bincount(r.train, minlength=n)
+    sw = shared["sample_weight"]
+    weights = counts if sw is None else counts * sw[None, :]
     # the one big product: every Gram matrix, Q^T diag(c) y and y^T diag(c) y of the chunk
-    summed = moments(counts, Q0, yc, shared)
+    summed = moments(weights, Q0, yc, shared)
     iu = shared["iu"]
     m = iu[0].size
     G = np.zeros((S, P, P))
@@ -138,12 +149,12 @@ def _chunk_fits(
 
     # distinct training rows -> the capacities that can be fitted at all (a leading run)
     if shared["n_unique"] == n:
-        distinct = np.count_nonzero(counts, axis=1)
+        distinct = np.count_nonzero(weights, axis=1)
     else:
         uid = shared["uid"]
         distinct = np.zeros(S, dtype=np.intp)
         for s in pos:
-            distinct[s] = np.unique(uid[counts[s] > 0]).size
+            distinct[s] = np.unique(uid[weights[s] > 0]).size
     fits = ref.n_cols[None, :] <= np.minimum(distinct, P)[:, None]
     pv = np.max(np.where(fits, ref.n_cols[None, :], 0), axis=1)
 
@@ -152,11 +163,22 @@ def _chunk_fits(
     redo = ~ok | np.any(in_prefix & (cond_bound > _GRAM_CONDITION_LIMIT), axis=1)
     for s in np.flatnonzero(redo[pos]):
         s = pos[s]
-        rows = np.flatnonzero(counts[s])
-        root_c = np.sqrt(counts[s, rows])
+        rows = np.flatnonzero(weights[s])
+        root_c = np.sqrt(weights[s, rows])
         Tinv[s], w[s], pv[s] = from_rows(Q0[rows] * root_c[:, None], root_c * yc[rows], pv[s])
 
     A = nested_coefficients(Tinv, w, ref.n_cols)  # (S, P, C)
+    C = ref.n_cols.size
+    # residuals = [Q0, ybar - target] @ [[A], [1 ... 1]]: one product per resample gives
+    # prediction - target for every capacity at its test rows
+    Q0t = shared["Q0_target"]
+    A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
+    # small problems: every row at once (one stacked product), then pick each test set
+    every_row = np.matmul(Q0t[None], A1) if n * P * C <= 200_000 else None
+    short = pv < int(ref.n_cols.max())
+    if sw is not None:
+        rss = _plain_sse(counts, pos, Q0t, A1, every_row)
+        return _ChunkFits(pos, counts, weights, A1, rss, distinct, pv, every_row, short)
     # training RSS of the largest usable fit: y'Cy - |w|^2 when that keeps >= 12 digits, else
     # (nearly exact fits, QR-refitted resamples) directly from its residuals
     rss_top = yy - np.sum(w**2, axis=1)
@@ -167,15 +189,29 @@ def _chunk_fits(
         resid = yc[rows] - Q0[rows] @ (Tinv[s] @ w[s])
         rss_top[s] = float(np.sum(counts[s, rows] * resid**2))
     rss = rss_top[:, None] + tail_sums(w)[:, np.minimum(ref.n_cols, P)]  # (S, C)
-    C = ref.n_cols.size
-    # residuals = [Q0, ybar - target] @ [[A], [1 ... 1]]: one product per resample gives
-    # prediction - target for every capacity at its test rows
-    Q0t = shared["Q0_target"]
-    A1 = np.concatenate([A, np.ones((S, 1, C))], axis=1)
-    # small problems: every row at once (one stacked product), then pick each test set
-    every_row = np.matmul(Q0t[None], A1) if n * P * C <= 200_000 else None
-    short = pv < int(ref.n_cols.max())
-    return _ChunkFits(pos, counts, A1, rss, distinct, pv, every_row, short)
+    return _ChunkFits(pos, counts, weights, A1, rss, distinct, pv, every_row, short)
+
+
+def _plain_sse(
+    counts: NDArray[np.float64],
+    pos: NDArray[np.intp],
+    Q0t: NDArray[np.float64],
+    A1: NDArray[np.float64],
+    every_row: NDArray[np.float64] | None,
+) -> NDArray[np.float64]:
+    """``sum_i c_i e_i^2`` per resample and capacity, from the residuals at the training rows.
+
+    A weighted fit's plain (unweighted) training error is not a tail sum of its weighted
+    factorisation, so it is computed from the residuals directly: no cancellation.
+    """
+    out = np.zeros((counts.shape[0], A1.shape[2]))
+    for s in pos:
+        if every_row is not None:
+            out[s] = counts[s] @ every_row[s] ** 2
+            continue
+        rows = np.flatnonzero(counts[s])
+        out[s] = counts[s, rows] @ (np.take(Q0t, rows, axis=0) @ A1[s]) ** 2
+    return out
 
 
 def _chunk_failures(
@@ -313,6 +349,7 @@ def _prepare(problem: Problem) -> tuple[Reference, dict[str, Any]]:
         )
         uid = _row_ids(X)
         shared.update(uid=uid, n_unique=int(uid.max()) + 1 if uid.size else 0)
+        shared["sample_weight"] = problem.sample_weight
         return ref, shared
     plan = problem.plan
     assert isinstance(plan, Simulation)

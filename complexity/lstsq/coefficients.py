@@ -185,6 +185,7 @@ def user_coefficients(
     part: CapacityFit,
     X: NDArray[np.float64],
     y: NDArray[np.float64],
+    sample_weight: NDArray[np.float64] | None = None,
 ) -> UserCoefficients:
     """Coefficients of one fitted capacity in the user's units: the one route.
 
@@ -196,6 +197,10 @@ def user_coefficients(
         That capacity's fit (:meth:`NestedFit.capacity <complexity.lstsq.nested.NestedFit.capacity>`).
     X, y : ndarray
         The data it was fitted to (polynomials: for the exact refinement step).
+    sample_weight : ndarray, optional
+        Positive weights of a weighted fit (``part`` fitted to ``sqrt(w) Z`` and ``sqrt(w) y``):
+        the refinement step is then a weighted fit of the exact residual and the residual SD
+        ``sqrt(sum w r^2 / (n - p))``, as in weighted least squares.
 
     Returns
     -------
@@ -229,12 +234,13 @@ def user_coefficients(
         return _mapped(part, T, T @ part.coef, sigma2, terms)
     basis = design.basis
     # one step of iterative refinement, the residual computed exactly (rational arithmetic)
+    root = np.ones(X.shape[0]) if sample_weight is None else np.sqrt(sample_weight)
     resid = exact_residuals(X, y, basis.exact_monomials(part.coef))
-    Zk = design.transform(X)[:, :k]
-    delta = nested_least_squares(Zk, resid, n_columns_per_capacity=[k]).coef[0]
+    Zk = design.transform(X)[:, :k] * root[:, None]
+    delta = nested_least_squares(Zk, root * resid, n_columns_per_capacity=[k]).coef[0]
     mono = basis.exact_monomials(part.coef, delta)
     if part.residual_dof > 0:
-        resid = exact_residuals(X, y, mono)
+        resid = root * exact_residuals(X, y, mono)
         sigma2 = math.fsum(resid**2) / float(part.residual_dof)
     coef = np.array([float(mono[t]) for t in terms])
     return _mapped(part, T, coef, sigma2, terms)
