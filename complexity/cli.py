@@ -17,6 +17,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, NoReturn
 
+from ._cli_calibration import parse_design, plan_designs, write_bands
 from ._csv_input import MIN_ROWS, one_line, read_table, select_data, separator_char
 from .exceptions import InputError, SweepFailedError
 
@@ -145,7 +146,7 @@ def _write_outputs(
         table.to_csv(args.curves_csv)
         written.append(f"curves (CSV): {args.curves_csv}")
     if args.bands is not None:
-        _write_bands(result, X, y, args.bands)
+        write_bands(result, X, y, args.bands)
         written.append(f"bands of the chosen fit (CSV): {args.bands}")
     if args.png is not None:
         from .plot import plot
@@ -168,39 +169,6 @@ def _write_outputs(
             result.report(args.report, X=X, y=y, command=command, **units)
         written.append(f"report (HTML): {args.report}")
     return written
-
-
-def _write_bands(result: Any, X: Any, y: Any, path: Path) -> None:
-    """The chosen polynomial on 101 points across the measured range, with both t-based bands."""
-    if result.metadata.get("ladder", {}).get("kind") != "polynomial" or X.shape[1] != 1:
-        raise InputError(
-            "--bands needs a polynomial sweep (--degrees) of one predictor; drop --bands here"
-        )
-    import numpy as np
-    import pandas as pd
-
-    from .bands import CAUTION, predict
-
-    low, high = result.metadata["x_range"][0]
-    grid = np.linspace(low, high, 101)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        conf = predict(result, X, y, grid, interval="confidence")
-        pred = predict(result, X, y, grid, interval="prediction")
-    table = pd.DataFrame(
-        {
-            str(X.columns[0]) if hasattr(X, "columns") else "x": grid,
-            "estimate": conf["estimate"].to_numpy(),
-            "confidence_lower": conf["lower"].to_numpy(),
-            "confidence_upper": conf["upper"].to_numpy(),
-            "prediction_lower": pred["lower"].to_numpy(),
-            "prediction_upper": pred["upper"].to_numpy(),
-        }
-    )
-    with open(path, "w", encoding="utf-8", newline="") as handle:
-        degree = conf.attrs.get("capacity", result.recommended)
-        handle.write(f"# degree {degree}, 95% t-based bands (least squares). {CAUTION}\n")
-        table.to_csv(handle, index=False)
 
 
 def _demo(args: argparse.Namespace, command: str) -> int:
@@ -249,6 +217,10 @@ def _sweep_csv(args: argparse.Namespace, command: str) -> int:
     _check_output(args.curves_csv, "--curves-csv", (".csv",))
     _check_output(args.png, "--png", (".png",))
     _check_output(args.bands, "--bands", (".csv",))
+    if bool(args.plan_design) != (args.plan_target is not None):
+        raise InputError("--plan-design and --plan-target go together; give both or neither")
+    if args.plan_target is not None and not args.plan_target > 0:
+        raise InputError(f"--plan-target {args.plan_target}: expected a standard error > 0")
     if args.repeats is not None and args.folds is None:
         raise InputError("--repeats goes with --folds (repeated K-fold); drop it or add --folds K")
 
@@ -302,8 +274,13 @@ def _sweep_csv(args: argparse.Namespace, command: str) -> int:
         progress=_progress_wanted(args.progress),
     )
     written = _write_outputs(result, args, X, y, command)
+    planning = (
+        plan_designs(result, X, y, args.plan_design, args.plan_target) if args.plan_design else None
+    )
     if not args.quiet:
         print(result.summary())
+        if planning:
+            print("\n" + planning)
         if written:
             print()
         for line in written:
@@ -534,6 +511,22 @@ def _parser() -> argparse.ArgumentParser:
         metavar="FILE.csv",
         help="the chosen polynomial across the measured range with 95%% confidence and "
         "prediction bands (one predictor, --degrees)",
+    )
+    out.add_argument(
+        "--plan-design",
+        type=parse_design,
+        action="append",
+        default=[],
+        metavar="POINTSxREPEATS",
+        help="a proposed next measurement, e.g. 9x2 (9 set points across the range, 2 readings "
+        "each); repeat the option to compare designs (with --plan-target)",
+    )
+    out.add_argument(
+        "--plan-target",
+        type=float,
+        default=None,
+        metavar="SE",
+        help="the largest acceptable standard error of the fitted curve in the range (y units)",
     )
     out.add_argument("--png", type=Path, default=None, metavar="FILE.png", help="one figure as PNG")
     out.add_argument(

@@ -487,3 +487,44 @@ def test_bands_needs_a_polynomial_sweep(tmp_path, capsys):
     code = main(["sweep", str(data), "--target", "y", "--bands", str(tmp_path / "b.csv")])
     assert code != 0
     assert "--bands needs a polynomial sweep" in capsys.readouterr().err
+
+
+def test_plan_design_reports_the_variance_profile_of_each_design(tmp_path, capsys):
+    rng = np.random.default_rng(7)  # synthetic calibration data
+    load = np.repeat(np.linspace(0.0, 10.0, 11), 3)
+    reading = 2.0 + 0.5 * load + 0.01 * load**2 + rng.normal(0, 0.05, load.size)
+    data = tmp_path / "cal.csv"
+    pd.DataFrame({"load": load, "reading": reading}).to_csv(data, index=False)
+    saved = tmp_path / "r.json"
+    args = ["sweep", str(data), "--target", "reading", "--degrees", "0-4", "--seed", "1"]
+    plan = ["--plan-design", "6x2", "--plan-design", "11x3", "--plan-target", "0.02"]
+    assert main([*args, *plan, "--save-result", str(saved)]) == 0
+    out = capsys.readouterr().out
+    result = cx.load_result(saved)
+    degree, sigma2 = int(result.recommended), result.noise.value
+    # published formula: Var(fitted curve at x0) = sigma² x0'(X'X)^-1 x0 for a design X
+    # (Draper & Smith ch. 3), computed here on the raw power design over 201 points of [0, 10]
+    grid = np.vander(np.linspace(0.0, 10.0, 201), degree + 1, increasing=True)
+    for k, r in ((6, 2), (11, 3)):
+        design = np.vander(np.repeat(np.linspace(0.0, 10.0, k), r), degree + 1, increasing=True)
+        var = sigma2 * np.einsum("ij,jk,ik->i", grid, np.linalg.inv(design.T @ design), grid)
+        line = next(row for row in out.splitlines() if row.startswith(f"{k}x{r} "))
+        assert f"{np.sqrt(var.max()):.4g}" in line.split()
+    assert "Smallest design meeting" in out and "no extrapolation" in out
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        (["--plan-design", "9x2"], "--plan-design and --plan-target go together"),
+        (["--plan-design", "nine", "--plan-target", "0.1"], "expected SET_POINTSxREPLICATES"),
+        (["--plan-design", "9x2", "--plan-target", "-1"], "expected a standard error > 0"),
+    ],
+)
+def test_plan_design_bad_input(tmp_path, capsys, extra, message):
+    data = tmp_path / "cal.csv"
+    x = np.linspace(0.0, 10.0, 20)
+    pd.DataFrame({"load": x, "reading": 1 + x}).to_csv(data, index=False)
+    code = main(["sweep", str(data), "--target", "reading", "--degrees", "0-2", *extra])
+    assert code != 0
+    assert message in capsys.readouterr().err
