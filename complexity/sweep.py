@@ -19,6 +19,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from ._contract import Engine, FullFit, Problem
+from ._engine_choice import check_weight_support, choose_engine, leverage_for
 from ._loss_result import is_loss_sweep, loss_sweep
 from ._progress import FitCounter
 from ._validation import (
@@ -32,9 +33,6 @@ from ._versions import installed_versions
 from .accumulate import PointAccumulator, tallies
 from .checkpoint import resume, seed_for
 from .decompose import curves_table, relation, replicate_errors, standard_error_text
-from .engine import generic as generic_engine
-from .engine import linear as linear_engine
-from .engine import ridge as ridge_engine
 from .exceptions import CapacityWarning, SweepFailedError
 from .ladders import Ladder
 from .noise import NOT_REPLICATES, NoiseEstimate, check_against_curve, estimate_noise
@@ -43,44 +41,6 @@ from .result import SweepResult, _failures_frame
 from .rules import CRITERIA, RULES, choose, rule_table, stability
 
 __all__ = ["CapacityWarning", "SweepFailedError", "sweep"]
-
-ENGINES = ("auto", "exact", "generic")
-
-
-def _fits_exact(problem: Problem) -> bool:
-    """Whether the exact least-squares engine can run this problem."""
-    return linear_engine.supports(problem)
-
-
-def _choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:
-    check_option("engine", engine, ENGINES)
-    if engine == "generic":
-        return generic_engine, "generic"
-    if _fits_exact(problem):
-        return linear_engine, "exact"
-    if ridge_engine.supports(problem):
-        return ridge_engine, "exact-ridge"
-    if engine == "exact":
-        raise ValueError(
-            f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "
-            f"the default estimator) or a ParamLadder over Ridge(alpha) (optionally after one "
-            f"StandardScaler); got {problem.ladder!r}. "
-            "Use engine='auto' or 'generic'."
-        )
-    return generic_engine, "generic"
-
-
-def _check_weight_support(models: list[Any]) -> None:
-    """Refuse sample_weight up front when a model's final step cannot take it."""
-    from sklearn.utils.validation import has_fit_parameter
-
-    for model in models:
-        final = model.steps[-1][1] if hasattr(model, "steps") else model
-        if not has_fit_parameter(final, "sample_weight"):
-            raise TypeError(
-                f"sample_weight was given, but {type(final).__name__}.fit takes no sample_weight; "
-                "drop sample_weight or use an estimator whose fit accepts it."
-            )
 
 
 def _noise_for(noise: Any, plan: Plan, X: np.ndarray | None, y: np.ndarray | None) -> NoiseEstimate:
@@ -140,26 +100,6 @@ def _residual_mean_square(
             )
             return new, f"the residual mean square of {label}, {value:.4g}"
     return bound, f"the lowest test error, {bound.value:.4g} (at {label})"
-
-
-def _leverage(full: FullFit | None, engine_used: str, problem: Problem) -> np.ndarray | None:
-    """Hat-matrix diagonals of the full-data least-squares fits, whichever engine ran.
-
-    The decomposition uses them for the closed-form variance of a point's average prediction, so
-    the generic engine on a least-squares ladder gets the same numbers as the exact one. Ridge
-    fits get none: for them sigma² h / (1 - h) is only an upper bound on that variance (the
-    penalty shrinks it), so their variance comes from the resampling spread like any estimator's.
-    """
-    if full is None or engine_used == "exact-ridge":
-        return None
-    if engine_used == "exact" and problem.sample_weight is None:
-        return full.leverage
-    if not _fits_exact(problem):
-        return None
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # the engine's own warnings were given by its run
-        # weighted fits: the leverage whose h/(1-h) is their out-of-sample variance factor
-        return linear_engine.variance_leverage(problem)
 
 
 def _stability(
@@ -267,7 +207,7 @@ def _pose(
     notes = ladder.check_data(Xd, names)
     models = ladder.build(Xd, names)
     if w is not None:
-        _check_weight_support(models)
+        check_weight_support(models)
     problem = Problem(
         ladder=ladder,
         models=models,
@@ -559,7 +499,7 @@ def sweep(
     posed = _pose(ladder, X, y, given_plan, groups, sample_weight, root)
     problem, notes = posed.problem, posed.notes
     the_plan = problem.plan
-    eng, engine_used = _choose_engine(engine, problem)
+    eng, engine_used = choose_engine(engine, problem)
     noise_est = _noise_for(noise, the_plan, problem.X, problem.y)
     if NOT_REPLICATES in noise_est.detail:  # a few repeated rows: accidental ties
         notes.append(
@@ -598,7 +538,7 @@ def sweep(
 
     # 4. decompose the accumulated errors into the curves
     layout = split_layout(the_plan, resamples, n_eval)
-    leverage = _leverage(full, engine_used, problem)
+    leverage = leverage_for(full, engine_used, problem)
     curves, noise_est, more = _decompose(
         acc, problem, full, layout, noise_est, leverage, posed.n_obs
     )
