@@ -262,3 +262,28 @@ def test_grid_search_over_a_classifier_pipeline(cancer):
     best = grid.best_estimator_[-1]
     assert best.capacity_ in C_VALUES and best.classes_.tolist() == [0, 1]
     assert grid.predict_proba(X[:5]).shape == (5, 2)
+
+
+def test_a_regressor_takes_a_loss_too():
+    # the regressor role keeps squared error by default and takes another loss when asked;
+    # Reference: cx.sweep with that loss, and scikit-learn's LinearRegression on the first k
+    # columns (FeatureLadder's default order) refitted on all rows.
+    from sklearn.datasets import load_diabetes
+    from sklearn.linear_model import LinearRegression
+
+    X, y = load_diabetes(return_X_y=True)
+    ladder = cx.FeatureLadder(range(1, 6))
+    default = cx.ComplexitySelector(ladder, plan=cx.CrossValidation(3), random_state=0).fit(X, y)
+    assert "test_mse" in default.result_.curves and is_regressor(default)
+    sel = cx.ComplexitySelector(
+        ladder, plan=cx.CrossValidation(3), loss="absolute-error", random_state=0
+    ).fit(X, y)
+    direct = cx.sweep(
+        ladder, X, y, plan=cx.CrossValidation(3), loss="absolute-error", random_state=0
+    )
+    assert sel.result_.metadata["loss"] == "absolute-error"
+    assert sel.capacity_ == direct.recommended
+    k = sel.capacity_
+    ref = LinearRegression().fit(X[:, :k], y)
+    np.testing.assert_allclose(sel.predict(X), ref.predict(X[:, :k]), rtol=1e-10)
+    assert not hasattr(sel, "classes_") and not hasattr(sel, "predict_proba")
