@@ -19,9 +19,7 @@ import base64
 import datetime as _dt
 import html
 import math
-import platform
 from collections.abc import Sequence
-from importlib import metadata as _md
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -31,6 +29,7 @@ import pandas as pd
 from ._figures_base import check_result
 from ._figures_curves import _errors_off_scale, _negative_bias, _negative_bias_words
 from ._report_calibration import calibration_section
+from ._reproduce import python_call, run_versions
 from ._text import CURVE_COLUMNS, capacity_words, cautions, ladder_kind, noise_of, reader_words
 from ._validation import _short_repr, check_X_y
 
@@ -139,61 +138,6 @@ def _num(value: Any, digits: int = 4) -> str:
             return "∞" if v > 0 else "−∞"
         return f"{v:.{digits}g}"
     return str(value)
-
-
-def _versions(result: SweepResult) -> dict[str, str]:
-    versions = dict(result.metadata.get("versions") or {})
-    for pkg in ("matplotlib",):
-        try:
-            versions.setdefault(pkg, _md.version(pkg))
-        except _md.PackageNotFoundError:  # pragma: no cover - figures need it anyway
-            versions.setdefault(pkg, "not installed")
-    versions.setdefault("python", platform.python_version())
-    return versions
-
-
-def python_call(result: SweepResult) -> str:
-    """The ``cx.sweep(...)`` call that repeats this sweep on the same X and y.
-
-    Examples
-    --------
-    >>> import complexity as cx
-    >>> from complexity.report import python_call
-    >>> X, y = cx.datasets.pressure_sensor()
-    >>> r = cx.sweep(cx.PolynomialLadder(range(0, 3)), X, y, plan=cx.Bootstrap(5), random_state=7)
-    >>> python_call(r)
-    "cx.sweep(cx.PolynomialLadder(degrees=[0, 1, 2], domain=None), X, y, plan=cx.Bootstrap(n_resamples=5), noise='replicates', rule='one-se', random_state=7)"
-    """
-    meta = result.metadata
-    ladder = meta.get("ladder_repr", "<ladder>")
-    plan = meta.get("plan_repr", "<plan>")
-    est = noise_of(result)
-    noise = est.value if est.method == "given" else est.method
-    seed = meta.get("random_state")
-    if seed is None:
-        seed = meta.get("seed_entropy")
-    prefix = "" if str(ladder).startswith("<") else "cx."
-    plan_prefix = "" if str(plan).startswith("<") or "(" not in str(plan) else "cx."
-    if meta.get("plan", {}).get("kind") == "splitter":
-        plan_prefix = ""
-    parts = [
-        f"{prefix}{ladder}",
-        "X",
-        "y",
-        f"plan={plan_prefix}{plan}",
-        f"noise={noise!r}",
-        f"rule={result.rule!r}",
-        f"random_state={seed!r}",
-    ]
-    if meta.get("engine") not in (
-        None,
-        "auto",
-        "exact",
-        "exact-ridge",
-        "generic",
-    ):  # pragma: no cover
-        parts.append(f"engine={meta['engine']!r}")
-    return "cx.sweep(" + ", ".join(parts) + ")"
 
 
 def _table(
@@ -470,7 +414,7 @@ def render_report(
     caution_items = "".join(
         f"<li>{_esc(c)}</li>" for c in cautions(kind, _ranges_text(result, names))
     )
-    versions = _versions(result)
+    versions = run_versions(result)
     repro = [
         ("seed", meta.get("seed_entropy", "?")),
         ("random_state", meta.get("random_state")),
