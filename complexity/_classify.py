@@ -21,13 +21,13 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from joblib import Parallel, delayed, effective_n_jobs
 from numpy.typing import ArrayLike, NDArray
 from sklearn.base import is_classifier
 
 from . import losses as L
 from ._labels import capacity_index
 from ._validation import _short_repr, as_seed_sequence, check_n_jobs, check_X, check_y
+from .engine._dispatch import chunk_length, map_chunks, slices
 from .engine.generic import _message, _random_state_keys, _seed_estimator
 from .ladders import Ladder
 from .plans import (
@@ -272,13 +272,6 @@ def _fit_chunk(spec: _Spec, ladder: Ladder, chunk: Sequence[Resample]) -> list[_
     return [_fit_resample(spec, r, keys, ladder) for r in chunk]
 
 
-def _chunks(n: int, n_jobs: int | None) -> list[tuple[int, int]]:
-    """Chunk boundaries as a function of the worker count; the tallies do not depend on them."""
-    workers = max(1, effective_n_jobs(n_jobs))
-    size = max(1, min(32, -(-n // (4 * workers))))
-    return [(i, min(i + size, n)) for i in range(0, n, size)]
-
-
 class _Tallies:
     """Running sums over resamples; added to in resample order only."""
 
@@ -392,15 +385,11 @@ def _run(
     """Fit every capacity on every resample (joblib) and tally the losses in resample order."""
     n, C, R = spec.data.X.shape[0], len(spec.models), len(resamples)
     tallies = _Tallies(n, C, R, K, spec.loss)
-    chunks = _chunks(R, n_jobs)
-    # a generator: joblib draws a few tasks ahead, so only those chunks' index arrays exist
-    tasks = (delayed(_fit_chunk)(spec, ladder, resamples[a:b]) for a, b in chunks)
-    results: Any = (
-        [_fit_chunk(spec, ladder, resamples[:R])]
-        if len(chunks) == 1
-        else Parallel(n_jobs=n_jobs, return_as="generator")(tasks)
-    )
-    for outcome in results:  # in submission order, so the sums do not depend on n_jobs
+    # the engines' joblib loop: chunks drawn lazily, results in submission order
+    chunks = slices(resamples, chunk_length(R, n_jobs))
+    for outcome in map_chunks(
+        _fit_chunk, (spec, ladder), chunks, n_jobs=n_jobs, size=len
+    ):  # in submission order, so the sums do not depend on n_jobs
         for index, replicate, test, fits in outcome:
             tallies.replicate_of[index] = replicate
             tallies.add(index, test, fits)

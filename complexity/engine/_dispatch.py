@@ -24,7 +24,14 @@ from typing import Any
 
 from joblib import Parallel, delayed
 
-__all__ = ["call_with_single_blas", "group_by_index", "map_chunks", "single_blas"]
+__all__ = [
+    "call_with_single_blas",
+    "chunk_length",
+    "group_by_index",
+    "map_chunks",
+    "single_blas",
+    "slices",
+]
 
 
 @functools.lru_cache(maxsize=1)
@@ -125,6 +132,22 @@ def group_by_index(resamples: Iterable[Any], size: int) -> Iterator[list[Any]]:
         seen.add(r.index)
     if group:
         yield group
+
+
+def chunk_length(n_resamples: int, n_jobs: int | None) -> int:
+    """Resamples per task: about four tasks per worker, at most 32 resamples each.
+
+    Only the task sizes depend on it; results are the same for any value.
+
+    Examples
+    --------
+    >>> chunk_length(1000, 1), chunk_length(10, 1), chunk_length(0, 1)
+    (32, 3, 1)
+    """
+    from joblib import effective_n_jobs
+
+    workers = max(1, effective_n_jobs(n_jobs))
+    return max(1, min(32, -(-n_resamples // (4 * workers))))
 
 
 def slices(items: Sequence[Any], size: int) -> Iterator[Sequence[Any]]:

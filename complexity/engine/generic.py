@@ -19,7 +19,7 @@ from .._contract import FullFit, Outcome, Problem
 from ..accumulate import Tally, tallies
 from ..accumulate import block_size as _points_block_size
 from ..plans import STREAM_ESTIMATOR, STREAM_FULL_FIT, Resample, child_seed
-from ._dispatch import map_chunks, slices
+from ._dispatch import chunk_length, map_chunks, slices
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies"]
 
@@ -131,14 +131,6 @@ def _fit_chunk(problem: Problem, chunk: Sequence[Resample]) -> list[Outcome]:
     return [_one_resample(problem, r, keys) for r in chunk]
 
 
-def _chunk_length(n_resamples: int, n_jobs: int | None) -> int:
-    """Resamples per task: about four tasks per worker, at most 32 resamples each."""
-    from joblib import effective_n_jobs
-
-    workers = max(1, effective_n_jobs(n_jobs))
-    return max(1, min(32, -(-n_resamples // (4 * workers))))
-
-
 def run(
     problem: Problem,
     resamples: Sequence[Resample],
@@ -159,7 +151,7 @@ def run(
     """
     # a generator of slices: joblib draws a few tasks ahead, so only those chunks' index arrays
     # exist at any time
-    chunks = slices(resamples, _chunk_length(len(resamples), n_jobs))
+    chunks = slices(resamples, chunk_length(len(resamples), n_jobs))
     C = problem.n_capacities
     for outcomes in map_chunks(
         _fit_chunk,

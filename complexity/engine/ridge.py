@@ -32,11 +32,11 @@ from numpy.typing import NDArray
 
 from .._contract import FullFit, Outcome, Problem
 from ..accumulate import Tally, tallies
-from ..accumulate import block_size as _points_block_size
 from ..criteria import gcv, loocv, loocv_defined
 from ..plans import Resample
-from ._dispatch import call_with_single_blas, map_chunks, single_blas, slices
+from ._dispatch import call_with_single_blas, chunk_length, map_chunks, single_blas, slices
 from ._ridge_problem import RidgeSpec, ridge_spec
+from .generic import block_size  # resamples per block: a function of the problem's size only
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies", "supports"]
 
@@ -183,14 +183,6 @@ def _task(
     return result
 
 
-def _chunk_length(n_resamples: int, n_jobs: int | None) -> int:
-    """Resamples per task: about four tasks per worker, at most 32 resamples each."""
-    from joblib import effective_n_jobs
-
-    workers = max(1, effective_n_jobs(n_jobs))
-    return max(1, min(32, -(-n_resamples // (4 * workers))))
-
-
 def run(
     problem: Problem,
     resamples: Sequence[Resample],
@@ -223,32 +215,13 @@ def run(
         for outcomes in map_chunks(
             _task,
             (os.getpid(), problem, spec),
-            slices(resamples, _chunk_length(len(resamples), n_jobs)),
+            slices(resamples, chunk_length(len(resamples), n_jobs)),
             n_jobs=n_jobs,
             size=lambda outcomes: len(outcomes) * C,
             on_done=on_done,
             prefer="threads",  # numpy releases the GIL in the SVD and the products
         ):
             yield from outcomes
-
-
-def block_size(problem: Problem) -> int:
-    """Resamples per accumulation block (a function of the problem's size only).
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> import complexity as cx
-    >>> from sklearn.linear_model import Ridge
-    >>> from complexity._contract import Problem
-    >>> X = np.linspace(0, 1, 20)[:, None]
-    >>> ladder = cx.ParamLadder(Ridge(), "alpha", [0.1, 1.0])
-    >>> problem = Problem(ladder, ladder.build(X), X, X[:, 0], X, X[:, 0], cx.Bootstrap(5),
-    ...                   np.random.SeedSequence(0), X)
-    >>> block_size(problem) >= 1
-    True
-    """
-    return _points_block_size(problem.X_eval.shape[0], problem.n_capacities)
 
 
 def run_tallies(
