@@ -20,8 +20,10 @@ __all__ = ["parse_design", "plan_designs", "write_bands"]
 _DESIGN = re.compile(r"^\s*(\d+)\s*[xX]\s*(\d+)\s*$")
 
 
-def _check_polynomial(result: Any, X: Any, option: str) -> None:
-    if result.metadata.get("ladder", {}).get("kind") != "polynomial" or X.shape[1] != 1:
+def _check_polynomial(result: Any, option: str) -> None:
+    from ._refit import one_curve  # here, not at import: the CLI starts without scipy.stats
+
+    if not one_curve(result):
         raise InputError(
             f"{option} needs a polynomial sweep (--degrees) of one predictor; drop {option} here"
         )
@@ -46,7 +48,7 @@ def parse_design(text: str) -> tuple[int, int]:
 
 def write_bands(result: Any, X: Any, y: Any, path: Path) -> None:
     """The chosen polynomial on 101 points across the measured range, with both t-based bands."""
-    _check_polynomial(result, X, "--bands")
+    _check_polynomial(result, "--bands")
     import numpy as np
     import pandas as pd
 
@@ -77,7 +79,7 @@ def write_bands(result: Any, X: Any, y: Any, path: Path) -> None:
 def plan_designs(result: Any, X: Any, y: Any, designs: list[tuple[int, int]], target: float) -> str:
     """The planning table as text: each proposed design's largest and mean standard error of the
     chosen curve over the measured range, and the smallest one that meets ``target``."""
-    _check_polynomial(result, X, "--plan-design")
+    _check_polynomial(result, "--plan-design")
     import numpy as np
 
     from .bands import CAUTION

@@ -72,6 +72,28 @@ class _Setup:
         return self.degrees.index(int(capacity))
 
 
+def one_curve(result: SweepResult) -> bool:
+    """Whether ``result`` is a squared-error polynomial sweep of one predictor (one curve in x).
+
+    The calibration outputs of the report and the command line are drawn for these only.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> meta = {"ladder": {"kind": "polynomial"}, "x_range": [[0.0, 1.0]]}
+    >>> one_curve(SimpleNamespace(metadata=meta, noise=1.0))
+    True
+    >>> one_curve(SimpleNamespace(metadata={**meta, "x_range": [[0, 1], [0, 2]]}, noise=1.0))
+    False
+    """
+    meta = result.metadata
+    return (
+        result.noise is not None
+        and (meta.get("ladder") or {}).get("kind") == "polynomial"
+        and len(meta.get("x_range") or []) == 1
+    )
+
+
 def _setup(result: SweepResult, X: Any, y: Any) -> _Setup:
     """Check that X, y are the data of ``result`` (a polynomial sweep) and rebuild its basis."""
     meta = getattr(result, "metadata", None)

@@ -17,18 +17,12 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ._refit import one_curve
+
 if TYPE_CHECKING:
     from .result import SweepResult
 
 __all__ = ["calibration_section"]
-
-
-def _applies(result: SweepResult, X: Any, y: Any) -> bool:
-    if X is None or y is None or result.noise is None:
-        return False
-    if (result.metadata.get("ladder") or {}).get("kind") != "polynomial":
-        return False
-    return len(result.metadata.get("x_range") or []) == 1
 
 
 def _bands(result: SweepResult, X: Any, y: Any) -> pd.DataFrame:
@@ -84,7 +78,7 @@ def calibration_section(
     >>> 'id="calibration"' in render_report(r, X=X, y=y, band_resamples=10)
     True
     """
-    if not _applies(result, X, y):
+    if X is None or y is None or not one_curve(result):
         return ""
     from .profiles import plot_profile, profile
 
