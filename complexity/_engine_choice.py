@@ -18,6 +18,7 @@ from ._contract import Engine, FullFit, Problem
 from ._validation import check_option
 from .engine import generic as generic_engine
 from .engine import linear as linear_engine
+from .engine import ranked as ranked_engine
 from .engine import ridge as ridge_engine
 
 __all__ = ["ENGINES", "check_weight_support", "choose_engine", "leverage_for"]
@@ -39,6 +40,8 @@ def choose_engine(engine: str, problem: Problem) -> tuple[Engine, str]:
         return linear_engine, "exact"
     if ridge_engine.supports(problem):
         return ridge_engine, "exact-ridge"
+    if ranked_engine.supports(problem):
+        return ranked_engine, "exact-ranked"
     if engine == "exact":
         raise ValueError(
             f"engine='exact' needs a least-squares ladder (PolynomialLadder, or FeatureLadder with "

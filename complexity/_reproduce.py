@@ -71,6 +71,7 @@ def python_call(result: SweepResult) -> str:
         "auto",
         "exact",
         "exact-ridge",
+        "exact-ranked",
         "generic",
     ):  # pragma: no cover
         parts.append(f"engine={meta['engine']!r}")
