@@ -167,7 +167,8 @@ def test_correlation_ladder_equals_selectkbest_pipeline_on_diabetes(diabetes):
     result = cx.sweep(
         cx.FeatureLadder([1, 2, 4, 7], order="correlation"), X, y, plan=plan, random_state=3
     )
-    assert result.metadata["engine"] == "generic"
+    # ranked least-squares ladders now run on the ranked exact engine (engine/ranked.py)
+    assert result.metadata["engine"] == "exact-ranked"
     for k in (1, 2, 4, 7):
         ref = _pooled_cv_mse(
             make_pipeline(SelectKBest(f_regression, k=k), LinearRegression()), X, y, folds
@@ -271,14 +272,21 @@ def test_inclusion_survives_save_and_load(tmp_path):
     pd.testing.assert_frame_equal(back.inclusion, result.inclusion)
 
 
-def test_ranked_ladders_stay_on_the_generic_engine():
+def test_ranked_ladders_run_on_the_ranked_engine_and_agree_with_generic():
+    # a ranked order has no fixed nested design; engine='exact' takes the ranked exact engine,
+    # whose curves must equal the clone-and-fit reference (engine='generic') on the same draws
     rng = np.random.default_rng(0)
     X, y = rng.standard_normal((30, 4)), rng.standard_normal(30)
     ladder = cx.FeatureLadder([1, 2], order="f-test")
     assert ladder.nested_design(X) is None
     assert cx.FeatureLadder([1, 2]).nested_design(X) is not None
-    with pytest.raises(ValueError, match="engine='exact'"):
-        cx.sweep(ladder, X, y, plan=cx.Bootstrap(3), engine="exact", random_state=0)
+    fast = cx.sweep(ladder, X, y, plan=cx.Bootstrap(3), engine="exact", random_state=0)
+    slow = cx.sweep(ladder, X, y, plan=cx.Bootstrap(3), engine="generic", random_state=0)
+    assert fast.metadata["engine"] == "exact-ranked"
+    assert slow.metadata["engine"] == "generic"
+    np.testing.assert_allclose(
+        fast.curves["test_mse"].to_numpy(), slow.curves["test_mse"].to_numpy(), rtol=1e-10
+    )
 
 
 # ------------------------------------------------------------------ pure noise (the key check)
