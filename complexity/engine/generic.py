@@ -149,12 +149,24 @@ def run(
     on_done : callable, optional
         Called with the number of fits finished, after each chunk (for progress display).
     """
+    yield from _run_with(_fit_chunk, problem, resamples, n_jobs=n_jobs, on_done=on_done)
+
+
+def _run_with(
+    fit_chunk: Callable[[Problem, Sequence[Resample]], list[Outcome]],
+    problem: Problem,
+    resamples: Sequence[Resample],
+    *,
+    n_jobs: int | None,
+    on_done: Callable[[int], None] | None,
+) -> Iterator[Outcome]:
+    """Yield ``fit_chunk``'s outcomes chunk by chunk, in order (shared with the ranked engine)."""
     # a generator of slices: joblib draws a few tasks ahead, so only those chunks' index arrays
     # exist at any time
     chunks = slices(resamples, chunk_length(len(resamples), n_jobs))
     C = problem.n_capacities
     for outcomes in map_chunks(
-        _fit_chunk,
+        fit_chunk,
         (problem,),
         chunks,
         n_jobs=n_jobs,
@@ -181,8 +193,12 @@ def run_tallies(
     Fits dominate here, so the outcomes come back from the workers and are tallied as they
     arrive, by :func:`block_size` blocks (the same blocks a checkpointed sweep uses).
     """
+    yield from _tally_blocks(problem, run(problem, resamples, n_jobs=n_jobs, on_done=on_done))
+
+
+def _tally_blocks(problem: Problem, outcomes: Iterator[Outcome]) -> Iterator[Tally]:
+    """Tally ``outcomes`` by :func:`block_size` blocks (shared with the ranked engine)."""
     n_points, C = problem.X_eval.shape[0], problem.n_capacities
-    outcomes = run(problem, resamples, n_jobs=n_jobs, on_done=on_done)
     yield from tallies(outcomes, block_size(problem), n_points, C)
 
 

@@ -23,10 +23,9 @@ from scipy.linalg import solve_triangular
 
 from .._contract import Outcome, Problem
 from .._ranking import ranking
-from ..accumulate import Tally, tallies
+from ..accumulate import Tally
 from ..plans import Resample, Simulation
 from . import generic
-from ._dispatch import chunk_length, map_chunks, slices
 
 __all__ = ["block_size", "fit_full", "run", "run_tallies", "supports"]
 
@@ -65,9 +64,10 @@ def _nested_fit(
 
     Raises ``np.linalg.LinAlgError`` when the ranked design loses rank within the top count.
     """
-    xbar = X_tr[:, cols].mean(axis=0)
+    X_ranked = X_tr[:, cols]
+    xbar = X_ranked.mean(axis=0)
     ybar = float(y_tr.mean())
-    Xc = X_tr[:, cols] - xbar
+    Xc = X_ranked - xbar
     yc = y_tr - ybar
     top = cols.size
     B = np.zeros((top, len(counts)))
@@ -139,17 +139,7 @@ def run(
     >>> [o.residuals.shape[1] for o in run(problem, plan.resamples(40, root))]
     [3, 3, 3]
     """
-    chunks = slices(resamples, chunk_length(len(resamples), n_jobs))
-    C = problem.n_capacities
-    for outcomes in map_chunks(
-        _fit_chunk,
-        (problem,),
-        chunks,
-        n_jobs=n_jobs,
-        size=lambda outcomes: len(outcomes) * C,
-        on_done=on_done,
-    ):
-        yield from outcomes
+    yield from generic._run_with(_fit_chunk, problem, resamples, n_jobs=n_jobs, on_done=on_done)
 
 
 def block_size(problem: Problem) -> int:
@@ -165,9 +155,8 @@ def run_tallies(
     on_done: Callable[[int], None] | None = None,
 ) -> Iterator[Tally]:
     """Yield the tally of every :func:`block_size` block of resamples, in order."""
-    n_points, C = problem.X_eval.shape[0], problem.n_capacities
     outcomes = run(problem, resamples, n_jobs=n_jobs, on_done=on_done)
-    yield from tallies(outcomes, block_size(problem), n_points, C)
+    yield from generic._tally_blocks(problem, outcomes)
 
 
 def fit_full(problem: Problem) -> Any:
